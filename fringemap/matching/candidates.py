@@ -1,0 +1,187 @@
+"""Per-pixel thickness candidates: the local minima of the colour distance.
+
+Along the colour table the distance ``d(t)`` between a pixel's colour and the
+model's colour at thickness ``t`` has one local minimum per competing fringe
+order. :func:`find_candidates` returns the ``K`` lowest minima per pixel,
+refined below the table step by fitting a parabola through the minimum and its
+two neighbours. It is exhaustive over the table, so the pipeline uses it on a
+downsampled image (and on the few full-resolution pixels at steps);
+:func:`local_search` is the full-resolution pass that looks only in a window
+around a predicted thickness.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit, prange
+
+from .space import _dist
+
+__all__ = ["Candidates", "find_candidates", "local_search"]
+
+
+@dataclass(frozen=True)
+class Candidates:
+    """K candidate thicknesses per pixel, best first.
+
+    Attributes
+    ----------
+    thickness_nm : ndarray of shape (P, K)
+        Candidate thicknesses (nm); NaN where fewer than K minima exist.
+    cost : ndarray of shape (P, K)
+        Colour distance at each candidate (encoded units squared); inf if absent.
+    """
+
+    thickness_nm: np.ndarray
+    cost: np.ndarray
+
+
+@njit(cache=True, inline="always")
+def _refine(dm, d0, dp):
+    den = dm - 2.0 * d0 + dp
+    if den <= 0.0:
+        return 0.0, d0
+    off = 0.5 * (dm - dp) / den
+    if off > 0.5:
+        off = 0.5
+    elif off < -0.5:
+        off = -0.5
+    return off, d0 - 0.25 * (dm - dp) * off
+
+
+@njit(cache=True, parallel=True)
+def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
+    n = e.shape[0]
+    for p in prange(q.shape[0]):
+        q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
+        qq = q0 * q0 + q1 * q1 + q2 * q2
+        mu = lam * qq
+        for j in range(k):
+            out_t[p, j] = np.nan
+            out_c[p, j] = np.inf
+        dm = np.inf
+        d0 = _dist(q0, q1, q2, qq, e[0, 0], e[0, 1], e[0, 2], ee[0], mu)
+        for i in range(n):
+            if i + 1 < n:
+                dp = _dist(q0, q1, q2, qq, e[i + 1, 0], e[i + 1, 1], e[i + 1, 2], ee[i + 1], mu)
+            else:
+                dp = np.inf
+            if d0 <= dm and d0 < dp:
+                if i == 0 or i == n - 1:
+                    off, c = 0.0, d0
+                else:
+                    off, c = _refine(dm, d0, dp)
+                # insert into the sorted list of the k best
+                if c < out_c[p, k - 1]:
+                    j = k - 1
+                    while j > 0 and out_c[p, j - 1] > c:
+                        out_c[p, j] = out_c[p, j - 1]
+                        out_t[p, j] = out_t[p, j - 1]
+                        j -= 1
+                    out_c[p, j] = c
+                    out_t[p, j] = t0 + (i + off) * step
+            dm = d0
+            d0 = dp
+
+
+def find_candidates(
+    q: np.ndarray,
+    table_encoded: np.ndarray,
+    *,
+    t0_nm: float,
+    step_nm: float,
+    k: int,
+    intensity_weight: float,
+) -> Candidates:
+    """The ``k`` best local minima of the colour distance for each pixel.
+
+    Parameters
+    ----------
+    q : ndarray of shape (P, 3)
+        Encoded pixel colours (gain-corrected).
+    table_encoded : ndarray of shape (N, 3)
+        Encoded colour-table entries on a regular thickness grid.
+    t0_nm, step_nm : float
+        First thickness and step of the grid (nm).
+    k : int
+        Number of candidates kept per pixel.
+    intensity_weight : float
+        λ of :mod:`fringemap.matching.space`.
+    """
+    q = np.ascontiguousarray(q, dtype=np.float64).reshape(-1, 3)
+    e = np.ascontiguousarray(table_encoded, dtype=np.float64)
+    ee = np.sum(e * e, axis=1)
+    out_t = np.empty((q.shape[0], k))
+    out_c = np.empty((q.shape[0], k))
+    _candidates_kernel(q, e, ee, float(intensity_weight), int(k), float(t0_nm), float(step_nm),
+                       out_t, out_c)
+    return Candidates(thickness_nm=out_t, cost=out_c)
+
+
+@njit(cache=True, parallel=True)
+def _local_kernel(q, e, ee, lam, t0, step, pred, half, out_t, out_c, out_edge):
+    n = e.shape[0]
+    for p in prange(q.shape[0]):
+        if not np.isfinite(pred[p]):
+            out_t[p] = np.nan
+            out_c[p] = np.inf
+            out_edge[p] = True
+            continue
+        q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
+        qq = q0 * q0 + q1 * q1 + q2 * q2
+        mu = lam * qq
+        c = int(round((pred[p] - t0) / step))
+        i0 = max(0, c - half)
+        i1 = min(n - 1, c + half)
+        best = np.inf
+        bi = i0
+        for i in range(i0, i1 + 1):
+            d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+            if d < best:
+                best = d
+                bi = i
+        if 0 < bi < n - 1:
+            dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
+            dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
+            off, cost = _refine(dm, best, dp)
+        else:
+            off, cost = 0.0, best
+        out_t[p] = t0 + (bi + off) * step
+        out_c[p] = cost
+        # a minimum at the window's edge is not a true local minimum (unless at the table's)
+        out_edge[p] = (bi == i0 and i0 > 0) or (bi == i1 and i1 < n - 1)
+
+
+def local_search(
+    q: np.ndarray,
+    table_encoded: np.ndarray,
+    *,
+    t0_nm: float,
+    step_nm: float,
+    predicted_nm: np.ndarray,
+    window_nm: float,
+    intensity_weight: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Best thickness within ``predicted ± window`` for each pixel.
+
+    Returns
+    -------
+    thickness_nm : ndarray of shape (P,)
+    cost : ndarray of shape (P,)
+    at_edge : ndarray of bool, shape (P,)
+        True where the best value lies on the window's edge (the prediction
+        was off: the caller should search the whole table there).
+    """
+    q = np.ascontiguousarray(q, dtype=np.float64).reshape(-1, 3)
+    e = np.ascontiguousarray(table_encoded, dtype=np.float64)
+    ee = np.sum(e * e, axis=1)
+    pred = np.ascontiguousarray(predicted_nm, dtype=np.float64).reshape(-1)
+    out_t = np.empty(q.shape[0])
+    out_c = np.empty(q.shape[0])
+    out_edge = np.empty(q.shape[0], dtype=np.bool_)
+    half = max(1, int(np.ceil(window_nm / step_nm)))
+    _local_kernel(q, e, ee, float(intensity_weight), float(t0_nm), float(step_nm), pred, half,
+                  out_t, out_c, out_edge)
+    return out_t, out_c, out_edge

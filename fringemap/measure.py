@@ -1,0 +1,374 @@
+"""Measure one photo: the pipeline from linear colour to a thickness map.
+
+Stages, in order (each lives in its own module):
+
+1. :mod:`fringemap.io` — the photo in linear, white-balanced RGB;
+2. :mod:`fringemap.calibration` — the camera correction, if any;
+3. :mod:`fringemap.matching` — a smooth gain field and the K candidate
+   thicknesses per pixel, on a downsampled copy of the photo;
+4. :mod:`fringemap.orders` — one candidate per pixel, spatially continuous;
+5. full resolution — each pixel's best thickness near the coarse map,
+   with an exhaustive search where that fails (steps, scratches);
+6. reasons and confidence; 7. :mod:`fringemap.stats`.
+
+:func:`measure` is the Python API's main entry point.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+import cv2
+import numpy as np
+from scipy import ndimage
+
+from . import __version__
+from .colour.table import ColourTable, order_marks_nm
+from .errors import MeasurementError, OptionError
+from .matching.candidates import find_candidates, local_search
+from .matching.gain import fit_gain_field
+from .matching.space import INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL, encode
+from .orders.select import select_orders
+from .recipe import Recipe
+from .result import REASON_CODES, ThicknessMap
+
+__all__ = ["measure", "MeasureSettings", "parse_anchor"]
+
+#: encoded luminance below which a pixel is too dark to have a colour
+DARK_ENCODED = 0.06
+#: encoded value at or above which a channel counts as clipped
+SATURATED_ENCODED = 0.985
+#: CIELAB chroma below which the table's colours count as faded (beyond range)
+FADED_CHROMA = 2.0
+#: long side of the downsampled image used for gain and order selection (px)
+COARSE_SIDE = 320
+#: candidates per pixel
+K = 6
+
+
+class MeasureSettings:
+    """Tuning constants of the pipeline (documented defaults; rarely changed)."""
+
+    dark_encoded = DARK_ENCODED
+    faded_chroma = FADED_CHROMA
+    coarse_side = COARSE_SIDE
+    k = K
+    off_model_factor = 12.0
+
+
+def parse_anchor(text: str) -> tuple[float, float, float]:
+    """``X,Y=NM`` → (x_px, y_px, thickness_nm)."""
+    try:
+        xy, nm = text.split("=")
+        x, y = (float(v) for v in xy.split(","))
+        t = float(nm)
+    except ValueError:
+        raise OptionError(f"expected X,Y=NM (pixels, nm), got {text!r}", where="--anchor") from None
+    if not all(np.isfinite([x, y, t])) or t < 0:
+        raise OptionError(f"anchor values must be finite and NM >= 0, got {text!r}", where="--anchor")
+    return x, y, t
+
+
+def _block_mean(img: np.ndarray, weight: np.ndarray, f: int) -> tuple[np.ndarray, np.ndarray]:
+    """Weighted block means over f×f blocks; returns (mean (h, w, C), weight fraction (h, w))."""
+    h, w = weight.shape
+    hc, wc = h // f, w // f
+    wt = weight[: hc * f, : wc * f].astype(np.float32)
+    x = img[: hc * f, : wc * f].astype(np.float32) * wt[..., None]
+    s = x.reshape(hc, f, wc, f, -1).sum(axis=(1, 3))
+    n = wt.reshape(hc, f, wc, f).sum(axis=(1, 3))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = s / n[..., None]
+    return mean, n / (f * f)
+
+
+def _gain_samples(linear, t, table: ColourTable):
+    c = table.colour_at(np.nan_to_num(t))
+    cc = np.sum(c * c, axis=-1)
+    pc = np.sum(linear * c, axis=-1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g = pc / cc
+    g[~np.isfinite(t) | (cc < 1e-6)] = np.nan
+    return g, cc
+
+
+def _faded_mask(table: ColourTable, period_nm: float, threshold: float) -> np.ndarray:
+    """Table entries whose colours have faded: running max chroma over one period < threshold."""
+    n = max(3, int(round(period_nm / table.step_nm)))
+    chroma = ndimage.maximum_filter1d(table.chroma, size=n, mode="nearest")
+    faded = chroma < threshold
+    # only the thick end counts as "faded": thin films are legitimately grey
+    first_colour = np.argmax(table.chroma > 2 * threshold)
+    faded[: first_colour + n] = False
+    return faded
+
+
+def measure(
+    photo,
+    recipe: Recipe,
+    *,
+    table: ColourTable | None = None,
+    roi_mask: np.ndarray | None = None,
+    anchors: tuple[tuple[float, float, float], ...] = (),
+    camera=None,
+    progress: Callable[[str], None] | None = None,
+) -> ThicknessMap:
+    """Measure film thickness over a photo.
+
+    Parameters
+    ----------
+    photo : Photo, str, Path or ndarray
+        A :class:`fringemap.io.Photo`, a path to an image file, or an RGB
+        array (uint8/uint16 taken as sRGB-encoded, float as linear).
+    recipe : Recipe
+        Stack, light, camera and search range.
+    table : ColourTable, optional
+        A prebuilt colour table for ``recipe`` (saves rebuilding it in batches).
+    roi_mask : ndarray of bool (H, W), optional
+        Where to measure; outside it the thickness is NaN (reason outside-roi).
+        Default: the recipe's ``measure.roi``.
+    anchors : tuple of (x_px, y_px, thickness_nm)
+        Points of known thickness (bare substrate = 0). Default: the recipe's.
+    camera : CameraModel, optional
+        A colour correction from :mod:`fringemap.calibration` applied to the
+        linear photo before matching.
+    progress : callable, optional
+        Called with a short stage name as the work proceeds.
+
+    Returns
+    -------
+    ThicknessMap
+    """
+    from .io import Photo, photo_from_array, read_photo
+    from .roi import parse_roi
+    from .roi import roi_mask as make_roi_mask
+    from .stats import uniformity
+
+    t_start = time.perf_counter()
+    say = progress or (lambda stage: None)
+    if isinstance(photo, str | Path):
+        photo = read_photo(photo)
+    elif isinstance(photo, np.ndarray):
+        photo = photo_from_array(
+            photo, encoding="linear" if np.issubdtype(photo.dtype, np.floating) else "srgb"
+        )
+    if not isinstance(photo, Photo):
+        raise OptionError(f"expected a Photo, path or array, got {type(photo).__name__}",
+                          where="photo")
+    where = photo.path or "photo"
+    linear = photo.linear
+    h, w = linear.shape[:2]
+    if camera is not None:
+        linear = camera.apply(linear)
+    if table is None:
+        say("colour table")
+        table = recipe.colour_table()
+    stack = recipe.stack()
+
+    # ---- masks that need no model --------------------------------------------------
+    if roi_mask is None:
+        roi_mask = make_roi_mask(parse_roi(recipe.get("measure", "roi")), (h, w))
+    if not anchors:
+        anchors = tuple(parse_anchor(a) for a in recipe.get("measure", "anchors"))
+    for x, y, _ in anchors:
+        if not (0 <= x < w and 0 <= y < h):
+            raise OptionError(f"anchor {x:g},{y:g} lies outside the {w}x{h} photo",
+                              where="--anchor")
+    lum = linear @ np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
+    lum_enc = encode(np.clip(lum, 0, None))
+    saturated = photo.saturated.copy()
+    dark = lum_enc < MeasureSettings.dark_encoded
+    if np.all(dark | saturated):
+        problem = "entirely saturated" if saturated.mean() > 0.5 else "entirely dark"
+        raise MeasurementError(f"the photo is {problem}: nothing can be measured", where=where)
+    usable = roi_mask & ~saturated & ~dark
+
+    # ---- coarse level: gain field and order selection ------------------------------
+    f = max(1, int(np.ceil(max(h, w) / MeasureSettings.coarse_side)))
+    lin_c, frac_c = _block_mean(linear, usable, f)
+    valid_c = frac_c >= 0.5
+    hc, wc = valid_c.shape
+    e_tab = encode(table.rgb)
+    t0, step = float(table.thickness_nm[0]), table.step_nm
+    stride = max(1, int(round(2.0 / step)))  # the coarse search uses a ~2 nm grid
+    e_coarse = e_tab[::stride]
+    n_ref = float(np.real(stack.film.index(np.array([550.0]))[0]))
+    angle = recipe.get("light", "angle_deg")
+    period = 550.0 / (2 * n_ref * np.sqrt(1 - (np.sin(np.deg2rad(angle)) / n_ref) ** 2))
+    tau, max_jump = 0.15 * period, 0.45 * period
+    anchors_c = tuple((min(wc - 1, int(x // f)), min(hc - 1, int(y // f)), t)
+                      for x, y, t in anchors)
+
+    y_tab = table.rgb @ np.array([0.2126, 0.7152, 0.0722])
+    if not valid_c.any():
+        raise MeasurementError("no usable pixels (all dark, saturated or outside the ROI)",
+                               where=where)
+    g0 = float(np.percentile((lin_c @ np.array([0.2126, 0.7152, 0.0722]))[valid_c], 99))
+    g0 = g0 / float(np.percentile(y_tab, 99))
+    gain_c = np.full((hc, wc), g0, dtype=np.float64)
+    gain = None
+    passes = (INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL,
+              INTENSITY_WEIGHT_FULL)
+    sel = None
+    q_c = None
+    for i, lam in enumerate(passes):
+        say(f"gain and orders, pass {i + 1}/{len(passes)}")
+        q_c = encode(lin_c / gain_c[..., None])
+        cands = find_candidates(q_c[valid_c], e_coarse, t0_nm=t0, step_nm=step * stride,
+                                k=MeasureSettings.k, intensity_weight=lam)
+        noise = max(float(np.median(cands.cost[:, 0])), 3 * 0.002**2)
+        ct = np.full((hc, wc, MeasureSettings.k), np.nan)
+        cc = np.full((hc, wc, MeasureSettings.k), np.inf)
+        ct[valid_c] = cands.thickness_nm
+        cc[valid_c] = cands.cost / noise
+        sel = select_orders(ct, cc, valid=valid_c, tau_nm=tau, max_jump_nm=max_jump,
+                            anchors=anchors_c)
+        if i == len(passes) - 1:
+            break
+        samples, cc_model = _gain_samples(lin_c, sel.thickness_nm, table)
+        weights = np.where(valid_c, cc_model / (1.0 + np.nan_to_num(sel.cost, nan=1e3)), 0.0)
+        gain = fit_gain_field(samples, weights)
+        gain_c = gain.evaluate((hc, wc)).astype(np.float64)
+    coarse_noise = noise
+
+    # ---- full resolution -----------------------------------------------------------
+    say("full resolution")
+    t_c = sel.thickness_nm
+    filled = t_c.copy()
+    if np.isnan(filled).any() and np.isfinite(filled).any():
+        idx = ndimage.distance_transform_edt(np.isnan(filled), return_distances=False,
+                                             return_indices=True)
+        filled = filled[tuple(idx)]
+    pred = cv2.resize(filled.astype(np.float32), (wc * f, hc * f), interpolation=cv2.INTER_LINEAR)
+    pred = np.pad(pred, ((0, h - hc * f), (0, w - wc * f)), mode="edge")
+    region_full = cv2.resize(sel.region.astype(np.float32), (wc * f, hc * f),
+                             interpolation=cv2.INTER_NEAREST)
+    region_full = np.pad(region_full, ((0, h - hc * f), (0, w - wc * f)), mode="edge").astype(int)
+    gain_full = gain.evaluate((h, w))
+    q = encode(linear / gain_full[..., None])
+    flat_q = q.reshape(-1, 3)
+    flat_pred = pred.reshape(-1).astype(np.float64)
+    use = usable.reshape(-1)
+    thick = np.full(h * w, np.nan)
+    cost = np.full(h * w, np.inf)
+    ti, ci, edge = local_search(flat_q[use], e_tab, t0_nm=t0, step_nm=step,
+                                predicted_nm=flat_pred[use], window_nm=0.12 * period + 8,
+                                intensity_weight=INTENSITY_WEIGHT_FULL)
+    # the noise level at full resolution: robust, from the pixels that fit
+    noise_full = max(float(np.median(ci[np.isfinite(ci)])) if np.isfinite(ci).any() else 1e-4,
+                     3 * 0.002**2)
+    redo = edge | (ci > 6 * noise_full)
+    if redo.any():
+        idx = np.flatnonzero(use)[redo]
+        gc = find_candidates(flat_q[idx], e_tab, t0_nm=t0, step_nm=step, k=MeasureSettings.k,
+                             intensity_weight=INTENSITY_WEIGHT_FULL)
+        p = flat_pred[idx][:, None]
+        score = gc.cost / noise_full + ((gc.thickness_nm - p) / (0.3 * period)) ** 2
+        score = np.where(np.isfinite(score), score, np.inf)
+        best = np.argmin(score, axis=1)
+        rows = np.arange(idx.size)
+        t_alt = gc.thickness_nm[rows, best]
+        c_alt = gc.cost[rows, best]
+        better = c_alt < ci[redo]
+        ti_r = ti[redo]
+        ci_r = ci[redo]
+        ti_r[better] = t_alt[better]
+        ci_r[better] = c_alt[better]
+        ti[redo] = ti_r
+        ci[redo] = ci_r
+    thick[use] = ti
+    cost[use] = ci
+    thick = thick.reshape(h, w)
+    cost = cost.reshape(h, w)
+
+    # ---- reasons and confidence ----------------------------------------------------
+    say("reasons")
+    reasons = np.zeros((h, w), dtype=np.uint8)
+    faded = _faded_mask(table, period, MeasureSettings.faded_chroma)
+    idx_t = np.clip(np.round((np.nan_to_num(thick) - t0) / step).astype(int), 0, table.rgb.shape[0] - 1)
+    beyond = faded[idx_t] & np.isfinite(thick)
+    t_max = float(table.thickness_nm[-1])
+    beyond |= np.isfinite(thick) & (thick >= t_max - 2 * step) & (t_max > t0)
+    off_model = np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full)
+    # order confidence from the region the pixel grew in
+    margin = np.zeros((h, w))
+    rsize = np.zeros((h, w))
+    ok_region = region_full >= 0
+    if sel.region_margin.size:
+        margin[ok_region] = sel.region_margin[region_full[ok_region]]
+        rsize[ok_region] = sel.region_size[region_full[ok_region]]
+    ambiguous = ok_region & (rsize < 12) & (margin < 0.5)
+    # large dark areas are background (no film); small ones inside the film are too dark
+    dark_lab, n_dark = ndimage.label(dark & roi_mask)
+    no_film = np.zeros((h, w), dtype=bool)
+    if n_dark:
+        sizes = ndimage.sum_labels(np.ones((h, w)), dark_lab, index=np.arange(1, n_dark + 1))
+        big = np.flatnonzero(sizes >= 0.005 * h * w) + 1
+        no_film = np.isin(dark_lab, big)
+    reasons[~roi_mask] = REASON_CODES["outside-roi"]
+    inside = roi_mask
+    reasons[inside & dark] = REASON_CODES["too-dark"]
+    reasons[inside & no_film] = REASON_CODES["no-film"]
+    reasons[inside & saturated] = REASON_CODES["saturated"]
+    measured = inside & usable & np.isfinite(thick)
+    reasons[measured & ambiguous] = REASON_CODES["ambiguous-order"]
+    reasons[measured & off_model] = REASON_CODES["off-model"]
+    reasons[measured & beyond] = REASON_CODES["beyond-range"]
+    reasons[inside & usable & ~np.isfinite(thick)] = REASON_CODES["off-model"]
+    final = reasons == 0
+    # confidence: colour fit x thickness precision x order certainty
+    de = np.gradient(e_tab, step, axis=0)
+    slope = np.sqrt(np.sum(de**2, axis=1))[idx_t]  # encoded units per nm
+    sigma_t = np.sqrt(noise_full / 3) / np.maximum(slope, 1e-6)  # nm
+    conf = (np.exp(-0.5 * cost / (4 * noise_full)) / (1 + (sigma_t / 5.0) ** 2)
+            * np.clip(0.5 + margin / 4.0, 0.5, 1.0))
+    conf = np.where(final, conf, 0.0).astype(np.float32)
+    thick_out = np.where(final, thick, np.nan).astype(np.float32)
+
+    warnings: list[str] = []
+    sat_frac = float((saturated & roi_mask).mean())
+    if sat_frac > 0.01:
+        warnings.append(f"{100 * sat_frac:.1f} % of pixels are saturated: lower the exposure")
+    stats = uniformity(thick_out, mask=roi_mask)
+    if stats.coverage < 0.01:
+        warnings.append("no film found: coverage is below 1 % of the region of interest")
+    big_regions = np.argsort(-sel.region_size)[:3]
+    provenance = {
+        "software": f"fringemap {__version__}",
+        "colour_table": table.key,
+        "matching_space": table.space,
+        "coarse_factor_px": f,
+        "gain": {
+            "degree": gain.degree,
+            "residual_rms": gain.residual_rms,
+            "median": float(np.median(gain_full)),
+            "corner_to_centre": float(gain_full[0, 0] / gain_full[h // 2, w // 2]),
+        },
+        "noise_rms_encoded": float(np.sqrt(noise_full / 3)),
+        "coarse_noise_rms_encoded": float(np.sqrt(coarse_noise / 3)),
+        "order_period_nm": float(period),
+        "order_marks_nm": [float(v) for v in order_marks_nm(stack, angle_deg=angle,
+                                                              max_nm=table.thickness_nm[-1])],
+        "regions": [
+            {
+                "size_coarse_px": int(sel.region_size[r]),
+                "order_margin": float(min(sel.region_margin[r], 1e6)),
+                "anchored": bool(sel.region_anchored[r]),
+            }
+            for r in big_regions
+        ],
+        "anchors": [list(a) for a in anchors],
+        "seconds": round(time.perf_counter() - t_start, 3),
+    }
+    return ThicknessMap(
+        thickness_nm=thick_out,
+        confidence=conf,
+        reasons=reasons,
+        stats=stats,
+        recipe=recipe,
+        source=photo.path,
+        provenance=provenance,
+        warnings=tuple(warnings),
+    )

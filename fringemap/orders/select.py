@@ -1,0 +1,349 @@
+"""Fringe-order selection: one candidate per pixel, spatially continuous.
+
+Each pixel has K candidate thicknesses (one per competing fringe order) with
+colour costs. Picking each pixel's best candidate alone gives the wrong order
+wherever noise makes another order's colour fit slightly better. Here the
+choice follows the film's continuity instead, by quality-guided region
+growing after Herráez et al. [1]_: start from the most reliable pixel (the
+one whose best candidate beats its second best by the widest margin), then
+repeatedly take the frontier pixel whose best continuation is cheapest —
+candidate cost plus a penalty on the jump from the thickness predicted by its
+already-assigned neighbours (with linear extrapolation, so steep films are
+followed). A frontier pixel whose every candidate would jump by more than
+``max_jump_nm`` is not joined: that is a step (a scratch, a coating edge) or a
+separate piece of film, and it is grown later from a seed of its own.
+
+Absolute order. Region growing fixes orders relative to the seed. For each
+region the seed's alternative candidates are tried as hypotheses: the region
+is regrown from each and scored by its total colour cost; the lowest wins and
+the score gap, per pixel, says how sure the choice is. Anchors (points of
+known thickness) override this for the regions they lie in.
+
+References
+----------
+.. [1] M. A. Herráez, D. R. Burton, M. J. Lalor & M. A. Gdeisat, "Fast
+   two-dimensional phase-unwrapping algorithm based on sorting by
+   reliability following a noncontinuous path", Appl. Opt. 41, 7437 (2002),
+   doi:10.1364/AO.41.007437.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit
+
+__all__ = ["OrderSelection", "select_orders"]
+
+
+@dataclass(frozen=True)
+class OrderSelection:
+    """The chosen thickness per pixel and how it was decided.
+
+    Attributes
+    ----------
+    thickness_nm : ndarray (H, W)
+        Chosen thickness, NaN where no valid candidate.
+    cost : ndarray (H, W)
+        Colour cost of the chosen candidate (normalised by the noise level).
+    region : ndarray of int32 (H, W)
+        Region label (-1 where invalid); regions are grown separately.
+    region_margin : ndarray (R,)
+        Per region, mean cost gap per pixel between the chosen order
+        hypothesis and the next best (large = sure).
+    region_size : ndarray (R,)
+        Pixels per region.
+    region_anchored : ndarray of bool (R,)
+        Whether an anchor fixed the region's order.
+    """
+
+    thickness_nm: np.ndarray
+    cost: np.ndarray
+    region: np.ndarray
+    region_margin: np.ndarray
+    region_size: np.ndarray
+    region_anchored: np.ndarray
+
+
+# --- a small binary heap on parallel arrays (numba has no priority queue of tuples) ---
+
+
+@njit(cache=True)
+def _heap_push(keys, vals, size, key, val):
+    i = size
+    keys[i] = key
+    vals[i] = val
+    while i > 0:
+        parent = (i - 1) // 2
+        if keys[parent] <= keys[i]:
+            break
+        keys[parent], keys[i] = keys[i], keys[parent]
+        vals[parent], vals[i] = vals[i], vals[parent]
+        i = parent
+    return size + 1
+
+
+@njit(cache=True)
+def _heap_pop(keys, vals, size):
+    key, val = keys[0], vals[0]
+    size -= 1
+    keys[0] = keys[size]
+    vals[0] = vals[size]
+    i = 0
+    while True:
+        left = 2 * i + 1
+        right = left + 1
+        small = i
+        if left < size and keys[left] < keys[small]:
+            small = left
+        if right < size and keys[right] < keys[small]:
+            small = right
+        if small == i:
+            break
+        keys[small], keys[i] = keys[i], keys[small]
+        vals[small], vals[i] = vals[i], vals[small]
+        i = small
+    return key, val, size
+
+
+@njit(cache=True)
+def _predict(p, h, w, state_t, assigned):
+    """Thickness predicted at pixel p from assigned 4-neighbours (with extrapolation)."""
+    y, x = p // w, p % w
+    total = 0.0
+    count = 0
+    for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
+        y1, x1 = y + dy, x + dx
+        if y1 < 0 or y1 >= h or x1 < 0 or x1 >= w:
+            continue
+        n1 = y1 * w + x1
+        if not assigned[n1]:
+            continue
+        y2, x2 = y1 + dy, x1 + dx
+        est = state_t[n1]
+        if 0 <= y2 < h and 0 <= x2 < w:
+            n2 = y2 * w + x2
+            if assigned[n2]:
+                est = 2.0 * state_t[n1] - state_t[n2]
+                # damp extrapolation: halfway between flat and linear
+                est = 0.5 * (est + state_t[n1])
+        total += est
+        count += 1
+    if count == 0:
+        return np.nan
+    return total / count
+
+
+@njit(cache=True)
+def _best_choice(p, pred, cand_t, cand_c, tau, max_jump):
+    best = np.inf
+    bk = -1
+    for k in range(cand_t.shape[1]):
+        t = cand_t[p, k]
+        if not np.isfinite(t):
+            continue
+        jump = abs(t - pred)
+        if jump > max_jump:
+            continue
+        s = cand_c[p, k] + (jump / tau) ** 2
+        if s < best:
+            best = s
+            bk = k
+    return bk, best
+
+
+@njit(cache=True)
+def _grow(seed, seed_k, allowed, cand_t, cand_c, h, w, tau, max_jump, out_k, out_t, assigned):
+    """Grow from (seed, seed_k) over pixels with allowed[p]; returns pixels assigned, cost sum."""
+    n = h * w
+    keys = np.empty(4 * n + 4)
+    vals = np.empty(4 * n + 4, dtype=np.int64)
+    size = 0
+    out_k[seed] = seed_k
+    out_t[seed] = cand_t[seed, seed_k]
+    assigned[seed] = True
+    count = 1
+    cost_sum = cand_c[seed, seed_k]
+    queued = np.zeros(n, dtype=np.bool_)
+    size = _push_neighbours(seed, h, w, allowed, assigned, queued, keys, vals, size,
+                            cand_t, cand_c, out_t, tau, max_jump)
+    while size > 0:
+        key, p, size = _heap_pop(keys, vals, size)
+        if assigned[p]:
+            continue
+        pred = _predict(p, h, w, out_t, assigned)
+        k, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump)
+        if k < 0:
+            queued[p] = False  # may be reached again from another side
+            continue
+        if score > key + 1e-12:
+            # priority went stale (more neighbours assigned since): requeue
+            size = _heap_push(keys, vals, size, score, p)
+            continue
+        out_k[p] = k
+        out_t[p] = cand_t[p, k]
+        assigned[p] = True
+        count += 1
+        cost_sum += cand_c[p, k]
+        size = _push_neighbours(p, h, w, allowed, assigned, queued, keys, vals, size,
+                                cand_t, cand_c, out_t, tau, max_jump)
+    return count, cost_sum
+
+
+@njit(cache=True)
+def _push_neighbours(p, h, w, allowed, assigned, queued, keys, vals, size,
+                     cand_t, cand_c, out_t, tau, max_jump):
+    y, x = p // w, p % w
+    for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
+        y1, x1 = y + dy, x + dx
+        if y1 < 0 or y1 >= h or x1 < 0 or x1 >= w:
+            continue
+        q = y1 * w + x1
+        if assigned[q] or not allowed[q]:
+            continue
+        pred = _predict(q, h, w, out_t, assigned)
+        k, score = _best_choice(q, pred, cand_t, cand_c, tau, max_jump)
+        if k < 0:
+            continue
+        if size >= keys.shape[0]:
+            continue
+        queued[q] = True
+        size = _heap_push(keys, vals, size, score, q)
+    return size
+
+
+@njit(cache=True)
+def _select_all(cand_t, cand_c, valid, order, h, w, tau, max_jump, min_region,
+                anchor_pix, anchor_t, miss_cost):
+    n = h * w
+    kk = cand_t.shape[1]
+    out_k = np.full(n, -1, dtype=np.int64)
+    out_t = np.full(n, np.nan)
+    assigned = np.zeros(n, dtype=np.bool_)
+    region = np.full(n, -1, dtype=np.int32)
+    n_reg_max = n
+    margins = np.zeros(n_reg_max)
+    sizes = np.zeros(n_reg_max, dtype=np.int64)
+    anchored = np.zeros(n_reg_max, dtype=np.bool_)
+    seeds = np.zeros(n_reg_max, dtype=np.int64)
+    r = 0
+    # anchors seed first, with the candidate nearest to the known thickness
+    seed_list = np.concatenate((anchor_pix, order))
+    for idx in range(seed_list.shape[0]):
+        s = seed_list[idx]
+        if s < 0 or assigned[s] or not valid[s]:
+            continue
+        sk = 0
+        is_anchor = idx < anchor_pix.shape[0]
+        if is_anchor:
+            best = np.inf
+            for k in range(kk):
+                if np.isfinite(cand_t[s, k]) and abs(cand_t[s, k] - anchor_t[idx]) < best:
+                    best = abs(cand_t[s, k] - anchor_t[idx])
+                    sk = k
+        before = assigned.copy()
+        _grow(s, sk, valid & ~before, cand_t, cand_c, h, w, tau, max_jump, out_k, out_t, assigned)
+        members = assigned & ~before
+        for p in range(n):
+            if members[p]:
+                region[p] = r
+        sizes[r] = members.sum()
+        seeds[r] = s
+        anchored[r] = is_anchor
+        # order hypotheses: regrow the region from the seed's other candidates
+        if not is_anchor and sizes[r] >= min_region:
+            base_cost = 0.0
+            for p in range(n):
+                if members[p]:
+                    base_cost += cand_c[p, out_k[p]]
+            best_cost = base_cost
+            second = np.inf
+            best_k_alt = -1
+            best_alt_k = np.empty(0, dtype=np.int64)
+            for k in range(kk):
+                if k == sk or not np.isfinite(cand_t[s, k]):
+                    continue
+                hk = np.full(n, -1, dtype=np.int64)
+                ht = np.full(n, np.nan)
+                ha = ~members
+                cnt, csum = _grow(s, k, members, cand_t, cand_c, h, w, tau, max_jump, hk, ht, ha)
+                total = csum + (sizes[r] - cnt) * miss_cost
+                if total < best_cost:
+                    second = best_cost
+                    best_cost = total
+                    best_k_alt = k
+                    best_alt_k = hk
+                elif total < second:
+                    second = total
+            if best_k_alt >= 0:
+                # adopt the better hypothesis; pixels it could not reach keep their best candidate
+                for p in range(n):
+                    if members[p]:
+                        if best_alt_k[p] >= 0:
+                            out_k[p] = best_alt_k[p]
+                            out_t[p] = cand_t[p, best_alt_k[p]]
+            margins[r] = (second - best_cost) / sizes[r] if np.isfinite(second) else 1e9
+        else:
+            margins[r] = 1e9 if is_anchor else 0.0
+        r += 1
+    return out_k, out_t, region, margins[:r], sizes[:r], anchored[:r]
+
+
+def select_orders(
+    cand_t: np.ndarray,
+    cand_c: np.ndarray,
+    *,
+    valid: np.ndarray,
+    tau_nm: float,
+    max_jump_nm: float,
+    min_region_px: int = 12,
+    anchors: tuple[tuple[int, int, float], ...] = (),
+) -> OrderSelection:
+    """Choose one candidate per pixel by quality-guided region growing.
+
+    Parameters
+    ----------
+    cand_t, cand_c : ndarray (H, W, K)
+        Candidate thicknesses (nm) and costs normalised by the noise level
+        (so a good match costs about 1 per channel).
+    valid : ndarray of bool (H, W)
+        Pixels that take part.
+    tau_nm : float
+        Jump (nm) between neighbours that costs as much as one unit of colour cost.
+    max_jump_nm : float
+        Larger jumps are steps: not crossed by growth.
+    min_region_px : int
+        Regions smaller than this are not tested for their absolute order.
+    anchors : tuple of (x, y, thickness_nm)
+        Points of known thickness, in this grid's pixel coordinates.
+    """
+    h, w, k = cand_t.shape
+    ct = np.ascontiguousarray(cand_t.reshape(h * w, k), dtype=np.float64)
+    cc = np.ascontiguousarray(cand_c.reshape(h * w, k), dtype=np.float64)
+    v = np.ascontiguousarray(valid.reshape(-1)) & np.isfinite(ct[:, 0])
+    with np.errstate(invalid="ignore"):
+        gap = np.where(np.isfinite(cc[:, 1]), cc[:, 1] - cc[:, 0], 50.0)
+        reliability = np.minimum(gap, 50.0) - 0.5 * np.minimum(cc[:, 0], 50.0)
+    reliability[~v] = -np.inf
+    order = np.argsort(-reliability, kind="stable").astype(np.int64)
+    order = order[v[order]]
+    apix = np.array([int(y) * w + int(x) for x, y, _ in anchors], dtype=np.int64)
+    at = np.array([t for _, _, t in anchors], dtype=np.float64)
+    good = cc[v, 0]
+    miss = float(np.percentile(good, 90)) * 4 + 4.0 if good.size else 10.0
+    out_k, out_t, region, margins, sizes, anchored = _select_all(
+        ct, cc, v, order, h, w, float(tau_nm), float(max_jump_nm), int(min_region_px),
+        apix, at, miss,
+    )
+    cost = np.full(h * w, np.nan)
+    ok = out_k >= 0
+    cost[ok] = cc[ok, out_k[ok]]
+    return OrderSelection(
+        thickness_nm=out_t.reshape(h, w),
+        cost=cost.reshape(h, w),
+        region=region.reshape(h, w),
+        region_margin=margins,
+        region_size=sizes,
+        region_anchored=anchored,
+    )
