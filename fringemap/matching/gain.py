@@ -103,8 +103,10 @@ def fit_gain_field(
     coef = np.zeros(a.shape[1])
     scale = 0.05
     for _ in range(iterations):
-        sw = np.sqrt(wt)
-        coef, *_ = np.linalg.lstsq(a * sw[:, None], b * sw, rcond=None)
+        # weighted normal equations: (A^T W A) c = A^T W b, a small (P x P) system
+        aw = a * wt[:, None]
+        lhs = aw.T @ a + 1e-9 * np.eye(a.shape[1])
+        coef = np.linalg.solve(lhs, aw.T @ b)
         res = b - a @ coef
         mad = np.median(np.abs(res[wt > 0])) if np.any(wt > 0) else 0.05
         scale = max(1.4826 * mad, 0.003)
