@@ -67,7 +67,9 @@ def parse_anchor(text: str) -> tuple[float, float, float]:
     except ValueError:
         raise OptionError(f"expected X,Y=NM (pixels, nm), got {text!r}", where="--anchor") from None
     if not all(np.isfinite([x, y, t])) or t < 0:
-        raise OptionError(f"anchor values must be finite and NM >= 0, got {text!r}", where="--anchor")
+        raise OptionError(
+            f"anchor values must be finite and NM >= 0, got {text!r}", where="--anchor"
+        )
     return x, y, t
 
 
@@ -155,8 +157,9 @@ def measure(
             photo, encoding="linear" if np.issubdtype(photo.dtype, np.floating) else "srgb"
         )
     if not isinstance(photo, Photo):
-        raise OptionError(f"expected a Photo, path or array, got {type(photo).__name__}",
-                          where="photo")
+        raise OptionError(
+            f"expected a Photo, path or array, got {type(photo).__name__}", where="photo"
+        )
     where = photo.path or "photo"
     linear = photo.linear
     h, w = linear.shape[:2]
@@ -174,8 +177,9 @@ def measure(
         anchors = tuple(parse_anchor(a) for a in recipe.get("measure", "anchors"))
     for x, y, _ in anchors:
         if not (0 <= x < w and 0 <= y < h):
-            raise OptionError(f"anchor {x:g},{y:g} lies outside the {w}x{h} photo",
-                              where="--anchor")
+            raise OptionError(
+                f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where="--anchor"
+            )
     lum = linear @ np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
     lum_enc = encode(np.clip(lum, 0, None))
     saturated = photo.saturated.copy()
@@ -198,33 +202,46 @@ def measure(
     angle = recipe.get("light", "angle_deg")
     period = 550.0 / (2 * n_ref * np.sqrt(1 - (np.sin(np.deg2rad(angle)) / n_ref) ** 2))
     tau, max_jump = 0.15 * period, 0.45 * period
-    anchors_c = tuple((min(wc - 1, int(x // f)), min(hc - 1, int(y // f)), t)
-                      for x, y, t in anchors)
+    anchors_c = tuple(
+        (min(wc - 1, int(x // f)), min(hc - 1, int(y // f)), t) for x, y, t in anchors
+    )
 
     y_tab = table.rgb @ np.array([0.2126, 0.7152, 0.0722])
     if not valid_c.any():
-        raise MeasurementError("no usable pixels (all dark, saturated or outside the ROI)",
-                               where=where)
+        raise MeasurementError(
+            "no usable pixels (all dark, saturated or outside the ROI)", where=where
+        )
     g0 = float(np.percentile((lin_c @ np.array([0.2126, 0.7152, 0.0722]))[valid_c], 99))
     g0 = g0 / float(np.percentile(y_tab, 99))
     gain_c = np.full((hc, wc), g0, dtype=np.float64)
     gain = None
-    passes = (INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL,
-              INTENSITY_WEIGHT_FULL)
+    passes = (
+        INTENSITY_WEIGHT_CHROMA,
+        INTENSITY_WEIGHT_CHROMA,
+        INTENSITY_WEIGHT_FULL,
+        INTENSITY_WEIGHT_FULL,
+    )
     sel = None
     q_c = None
     for i, lam in enumerate(passes):
         say(f"gain and orders, pass {i + 1}/{len(passes)}")
         q_c = encode(lin_c / gain_c[..., None])
-        cands = find_candidates(q_c[valid_c], e_coarse, t0_nm=t0, step_nm=step * stride,
-                                k=MeasureSettings.k, intensity_weight=lam)
+        cands = find_candidates(
+            q_c[valid_c],
+            e_coarse,
+            t0_nm=t0,
+            step_nm=step * stride,
+            k=MeasureSettings.k,
+            intensity_weight=lam,
+        )
         noise = max(float(np.median(cands.cost[:, 0])), 3 * 0.002**2)
         ct = np.full((hc, wc, MeasureSettings.k), np.nan)
         cc = np.full((hc, wc, MeasureSettings.k), np.inf)
         ct[valid_c] = cands.thickness_nm
         cc[valid_c] = cands.cost / noise
-        sel = select_orders(ct, cc, valid=valid_c, tau_nm=tau, max_jump_nm=max_jump,
-                            anchors=anchors_c)
+        sel = select_orders(
+            ct, cc, valid=valid_c, tau_nm=tau, max_jump_nm=max_jump, anchors=anchors_c
+        )
         if i == len(passes) - 1:
             break
         samples, cc_model = _gain_samples(lin_c, sel.thickness_nm, table)
@@ -238,13 +255,15 @@ def measure(
     t_c = sel.thickness_nm
     filled = t_c.copy()
     if np.isnan(filled).any() and np.isfinite(filled).any():
-        idx = ndimage.distance_transform_edt(np.isnan(filled), return_distances=False,
-                                             return_indices=True)
+        idx = ndimage.distance_transform_edt(
+            np.isnan(filled), return_distances=False, return_indices=True
+        )
         filled = filled[tuple(idx)]
     pred = cv2.resize(filled.astype(np.float32), (wc * f, hc * f), interpolation=cv2.INTER_LINEAR)
     pred = np.pad(pred, ((0, h - hc * f), (0, w - wc * f)), mode="edge")
-    region_full = cv2.resize(sel.region.astype(np.float32), (wc * f, hc * f),
-                             interpolation=cv2.INTER_NEAREST)
+    region_full = cv2.resize(
+        sel.region.astype(np.float32), (wc * f, hc * f), interpolation=cv2.INTER_NEAREST
+    )
     region_full = np.pad(region_full, ((0, h - hc * f), (0, w - wc * f)), mode="edge").astype(int)
     gain_full = gain.evaluate((h, w))
     q = encode(linear / gain_full[..., None])
@@ -253,17 +272,30 @@ def measure(
     use = usable.reshape(-1)
     thick = np.full(h * w, np.nan)
     cost = np.full(h * w, np.inf)
-    ti, ci, edge = local_search(flat_q[use], e_tab, t0_nm=t0, step_nm=step,
-                                predicted_nm=flat_pred[use], window_nm=0.12 * period + 8,
-                                intensity_weight=INTENSITY_WEIGHT_FULL)
+    ti, ci, edge = local_search(
+        flat_q[use],
+        e_tab,
+        t0_nm=t0,
+        step_nm=step,
+        predicted_nm=flat_pred[use],
+        window_nm=0.12 * period + 8,
+        intensity_weight=INTENSITY_WEIGHT_FULL,
+    )
     # the noise level at full resolution: robust, from the pixels that fit
-    noise_full = max(float(np.median(ci[np.isfinite(ci)])) if np.isfinite(ci).any() else 1e-4,
-                     3 * 0.002**2)
+    noise_full = max(
+        float(np.median(ci[np.isfinite(ci)])) if np.isfinite(ci).any() else 1e-4, 3 * 0.002**2
+    )
     redo = edge | (ci > 6 * noise_full)
     if redo.any():
         idx = np.flatnonzero(use)[redo]
-        gc = find_candidates(flat_q[idx], e_tab, t0_nm=t0, step_nm=step, k=MeasureSettings.k,
-                             intensity_weight=INTENSITY_WEIGHT_FULL)
+        gc = find_candidates(
+            flat_q[idx],
+            e_tab,
+            t0_nm=t0,
+            step_nm=step,
+            k=MeasureSettings.k,
+            intensity_weight=INTENSITY_WEIGHT_FULL,
+        )
         p = flat_pred[idx][:, None]
         score = gc.cost / noise_full + ((gc.thickness_nm - p) / (0.3 * period)) ** 2
         score = np.where(np.isfinite(score), score, np.inf)
@@ -287,7 +319,9 @@ def measure(
     say("reasons")
     reasons = np.zeros((h, w), dtype=np.uint8)
     faded = _faded_mask(table, period, MeasureSettings.faded_chroma)
-    idx_t = np.clip(np.round((np.nan_to_num(thick) - t0) / step).astype(int), 0, table.rgb.shape[0] - 1)
+    idx_t = np.clip(
+        np.round((np.nan_to_num(thick) - t0) / step).astype(int), 0, table.rgb.shape[0] - 1
+    )
     beyond = faded[idx_t] & np.isfinite(thick)
     t_max = float(table.thickness_nm[-1])
     beyond |= np.isfinite(thick) & (thick >= t_max - 2 * step) & (t_max > t0)
@@ -322,8 +356,11 @@ def measure(
     de = np.gradient(e_tab, step, axis=0)
     slope = np.sqrt(np.sum(de**2, axis=1))[idx_t]  # encoded units per nm
     sigma_t = np.sqrt(noise_full / 3) / np.maximum(slope, 1e-6)  # nm
-    conf = (np.exp(-0.5 * cost / (4 * noise_full)) / (1 + (sigma_t / 5.0) ** 2)
-            * np.clip(0.5 + margin / 4.0, 0.5, 1.0))
+    conf = (
+        np.exp(-0.5 * cost / (4 * noise_full))
+        / (1 + (sigma_t / 5.0) ** 2)
+        * np.clip(0.5 + margin / 4.0, 0.5, 1.0)
+    )
     conf = np.where(final, conf, 0.0).astype(np.float32)
     thick_out = np.where(final, thick, np.nan).astype(np.float32)
 
@@ -349,8 +386,9 @@ def measure(
         "noise_rms_encoded": float(np.sqrt(noise_full / 3)),
         "coarse_noise_rms_encoded": float(np.sqrt(coarse_noise / 3)),
         "order_period_nm": float(period),
-        "order_marks_nm": [float(v) for v in order_marks_nm(stack, angle_deg=angle,
-                                                              max_nm=table.thickness_nm[-1])],
+        "order_marks_nm": [
+            float(v) for v in order_marks_nm(stack, angle_deg=angle, max_nm=table.thickness_nm[-1])
+        ],
         "regions": [
             {
                 "size_coarse_px": int(sel.region_size[r]),

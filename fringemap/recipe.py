@@ -108,8 +108,12 @@ def _layers(v, key):
             continue
         if not isinstance(item, dict) or set(item) != {"material", "thickness_nm"}:
             raise OptionError("each layer needs exactly material and thickness_nm", where=k)
-        out.append((_material(item["material"], k + ".material"),
-                    _num(0)(item["thickness_nm"], k + ".thickness_nm")))
+        out.append(
+            (
+                _material(item["material"], k + ".material"),
+                _num(0)(item["thickness_nm"], k + ".thickness_nm"),
+            )
+        )
     return tuple(out)
 
 
@@ -240,7 +244,8 @@ class Recipe:
                     v = [{"material": m, "thickness_nm": d} for m, d in v]
                     items = ", ".join(
                         "{material = " + json.dumps(x["material"]) + f", thickness_nm = "
-                        f"{x['thickness_nm']!r}" + "}" for x in v
+                        f"{x['thickness_nm']!r}" + "}"
+                        for x in v
                     )
                     lines.append(f"{key} = [{items}]")
                 else:

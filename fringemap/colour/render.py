@@ -130,5 +130,3 @@ def _srgb_balanced_matrix(white_xyz: np.ndarray) -> np.ndarray:
     m = XYZ_TO_SRGB @ cat
     scale = 1.0 / (m @ white_xyz)
     return scale[:, None] * m
-
-

@@ -131,7 +131,9 @@ def _read_csv_columns(path: Path, ncols: int, what: str, where: str) -> np.ndarr
     try:
         text = path.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(f"cannot read {what} CSV ({exc.__class__.__name__})", where=where) from None
+        raise OptionError(
+            f"cannot read {what} CSV ({exc.__class__.__name__})", where=where
+        ) from None
     rows = []
     for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
         cells = [c.strip() for c in row if c.strip()]
@@ -185,9 +187,14 @@ def parse_light(spec: str | Light, *, where: str = "--light") -> Light:
     if m:
         temp = float(m.group(1))
         if not 500 <= temp <= 50000:
-            raise OptionError(f"blackbody temperature must be 500-50000 K, got {temp:g}", where=where)
-        return Light(f"blackbody:{temp:g}K", f"blackbody at {temp:g} K", _normalised(
-            _planck(GRID_NM, temp), where))
+            raise OptionError(
+                f"blackbody temperature must be 500-50000 K, got {temp:g}", where=where
+            )
+        return Light(
+            f"blackbody:{temp:g}K",
+            f"blackbody at {temp:g} K",
+            _normalised(_planck(GRID_NM, temp), where),
+        )
     m = re.fullmatch(r"(\d+(?:\.\d*)?)(?:\s*/\s*(\d+(?:\.\d*)?))?(?:\s*nm)?", text)
     if m:
         centre = float(m.group(1))
@@ -195,16 +202,26 @@ def parse_light(spec: str | Light, *, where: str = "--light") -> Light:
         if not GRID_NM[0] + 5 <= centre <= GRID_NM[-1] - 5:
             raise OptionError(f"line centre must be within 385-775 nm, got {centre:g}", where=where)
         if not 0 < fwhm <= 100:
-            raise OptionError(f"band width (FWHM) must be in (0, 100] nm, got {fwhm:g}", where=where)
-        return Light(text, f"band at {centre:g} nm, FWHM {fwhm:g} nm",
-                     _normalised(_band(centre, fwhm), where), centre_nm=centre, fwhm_nm=fwhm)
+            raise OptionError(
+                f"band width (FWHM) must be in (0, 100] nm, got {fwhm:g}", where=where
+            )
+        return Light(
+            text,
+            f"band at {centre:g} nm, FWHM {fwhm:g} nm",
+            _normalised(_band(centre, fwhm), where),
+            centre_nm=centre,
+            fwhm_nm=fwhm,
+        )
     if text.lower().endswith(".csv") or Path(text).is_file():
         path = Path(text)
         if not path.is_file():
             raise OptionError(f"light spectrum file {text!r} not found", where=where)
         data = _read_csv_columns(path, 2, "light", where)
-        return Light(path.name, f"spectrum from {path.name}",
-                     _normalised(_resample(data[:, 0], data[:, 1]), where))
+        return Light(
+            path.name,
+            f"spectrum from {path.name}",
+            _normalised(_resample(data[:, 0], data[:, 1]), where),
+        )
     return _named_light(text.upper(), where)
 
 

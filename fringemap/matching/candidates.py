@@ -115,8 +115,9 @@ def find_candidates(
     ee = np.sum(e * e, axis=1)
     out_t = np.empty((q.shape[0], k))
     out_c = np.empty((q.shape[0], k))
-    _candidates_kernel(q, e, ee, float(intensity_weight), int(k), float(t0_nm), float(step_nm),
-                       out_t, out_c)
+    _candidates_kernel(
+        q, e, ee, float(intensity_weight), int(k), float(t0_nm), float(step_nm), out_t, out_c
+    )
     return Candidates(thickness_nm=out_t, cost=out_c)
 
 
@@ -182,6 +183,17 @@ def local_search(
     out_c = np.empty(q.shape[0])
     out_edge = np.empty(q.shape[0], dtype=np.bool_)
     half = max(1, int(np.ceil(window_nm / step_nm)))
-    _local_kernel(q, e, ee, float(intensity_weight), float(t0_nm), float(step_nm), pred, half,
-                  out_t, out_c, out_edge)
+    _local_kernel(
+        q,
+        e,
+        ee,
+        float(intensity_weight),
+        float(t0_nm),
+        float(step_nm),
+        pred,
+        half,
+        out_t,
+        out_c,
+        out_edge,
+    )
     return out_t, out_c, out_edge

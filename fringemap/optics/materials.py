@@ -153,7 +153,9 @@ def _from_csv(path: Path) -> Material:
     try:
         text = path.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(f"cannot read index CSV ({exc.__class__.__name__})", where=where) from None
+        raise OptionError(
+            f"cannot read index CSV ({exc.__class__.__name__})", where=where
+        ) from None
     rows = []
     for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
         cells = [c.strip() for c in row if c.strip()]
@@ -290,7 +292,9 @@ def parse_material(spec: str | float | complex | Material, *, where: str = "mate
         _check_index_value(value, where)
         return _constant(value, f"{value:g}".strip("()"), "constant index", "user value")
     if not isinstance(spec, str) or not spec.strip():
-        raise OptionError(f"expected a material name, number or CSV path, got {spec!r}", where=where)
+        raise OptionError(
+            f"expected a material name, number or CSV path, got {spec!r}", where=where
+        )
     text = spec.strip()
     low = text.lower()
     try:
@@ -325,4 +329,3 @@ def parse_material(spec: str | float | complex | Material, *, where: str = "mate
         "cauchy:A,B, sellmeier:B1,C1,..., db:SHELF/BOOK/PAGE and CSV files work too)",
         where=where,
     )
-

@@ -166,8 +166,22 @@ def _grow(seed, seed_k, allowed, cand_t, cand_c, h, w, tau, max_jump, out_k, out
     count = 1
     cost_sum = cand_c[seed, seed_k]
     queued = np.zeros(n, dtype=np.bool_)
-    size = _push_neighbours(seed, h, w, allowed, assigned, queued, keys, vals, size,
-                            cand_t, cand_c, out_t, tau, max_jump)
+    size = _push_neighbours(
+        seed,
+        h,
+        w,
+        allowed,
+        assigned,
+        queued,
+        keys,
+        vals,
+        size,
+        cand_t,
+        cand_c,
+        out_t,
+        tau,
+        max_jump,
+    )
     while size > 0:
         key, p, size = _heap_pop(keys, vals, size)
         if assigned[p]:
@@ -186,14 +200,29 @@ def _grow(seed, seed_k, allowed, cand_t, cand_c, h, w, tau, max_jump, out_k, out
         assigned[p] = True
         count += 1
         cost_sum += cand_c[p, k]
-        size = _push_neighbours(p, h, w, allowed, assigned, queued, keys, vals, size,
-                                cand_t, cand_c, out_t, tau, max_jump)
+        size = _push_neighbours(
+            p,
+            h,
+            w,
+            allowed,
+            assigned,
+            queued,
+            keys,
+            vals,
+            size,
+            cand_t,
+            cand_c,
+            out_t,
+            tau,
+            max_jump,
+        )
     return count, cost_sum
 
 
 @njit(cache=True)
-def _push_neighbours(p, h, w, allowed, assigned, queued, keys, vals, size,
-                     cand_t, cand_c, out_t, tau, max_jump):
+def _push_neighbours(
+    p, h, w, allowed, assigned, queued, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump
+):
     y, x = p // w, p % w
     for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
         y1, x1 = y + dy, x + dx
@@ -214,8 +243,9 @@ def _push_neighbours(p, h, w, allowed, assigned, queued, keys, vals, size,
 
 
 @njit(cache=True)
-def _select_all(cand_t, cand_c, valid, order, h, w, tau, max_jump, min_region,
-                anchor_pix, anchor_t, miss_cost):
+def _select_all(
+    cand_t, cand_c, valid, order, h, w, tau, max_jump, min_region, anchor_pix, anchor_t, miss_cost
+):
     n = h * w
     kk = cand_t.shape[1]
     out_k = np.full(n, -1, dtype=np.int64)
@@ -333,8 +363,18 @@ def select_orders(
     good = cc[v, 0]
     miss = float(np.percentile(good, 90)) * 4 + 4.0 if good.size else 10.0
     out_k, out_t, region, margins, sizes, anchored = _select_all(
-        ct, cc, v, order, h, w, float(tau_nm), float(max_jump_nm), int(min_region_px),
-        apix, at, miss,
+        ct,
+        cc,
+        v,
+        order,
+        h,
+        w,
+        float(tau_nm),
+        float(max_jump_nm),
+        int(min_region_px),
+        apix,
+        at,
+        miss,
     )
     cost = np.full(h * w, np.nan)
     ok = out_k >= 0

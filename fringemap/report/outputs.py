@@ -104,8 +104,10 @@ def write_map_outputs(
         write_uint8_tiff(
             tmp["reasons"],
             result.reasons.astype(np.uint8),
-            description={**_description(result, "reason codes", "code"),
-                         "codes": {str(k): v for k, v in REASONS.items()}},
+            description={
+                **_description(result, "reason codes", "code"),
+                "codes": {str(k): v for k, v in REASONS.items()},
+            },
         )
         name = Path(result.source).name if result.source else stem
         draw_thickness_map(

@@ -1,0 +1,89 @@
+"""``fringemap map``: thickness maps from photos."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from ..errors import FringemapError
+from .common import add_stack_options, progress_bar, recipe_from_args, unique_stems
+
+
+def cmd_map(args) -> int:
+    from ..io import read_photo
+    from ..io.write import check_no_clash, check_output_dir
+    from ..measure import measure
+    from ..report.outputs import output_paths, write_map_outputs
+
+    recipe = recipe_from_args(args)
+    recipe.require_stack()
+    photos = [Path(p) for p in args.photos]
+    out = check_output_dir(args.out, inputs=photos)
+    stems = unique_stems(photos)
+    planned = [p for stem in stems for p in output_paths(out, stem).values()]
+    check_no_clash(planned, photos)
+    table = recipe.colour_table()
+    failures: list[FringemapError] = []
+    bar = progress_bar(len(photos), "mapping", args.quiet)
+    for path, stem in zip(photos, stems, strict=True):
+        try:
+            photo = read_photo(path)
+            result = measure(photo, recipe, table=table)
+            written = write_map_outputs(result, out, stem)
+        except FringemapError as exc:
+            if args.debug:
+                raise
+            failures.append(exc)
+            print(f"fringemap: error: {exc}", file=sys.stderr)
+            bar.update(1)
+            continue
+        bar.update(1)
+        if not args.quiet:
+            s = result.stats
+            if s.count_px:
+                line = (
+                    f"{path.name}: mean {s.mean_nm:.1f} nm, median {s.median_nm:.1f} nm, "
+                    f"std {s.std_nm:.2f} nm, range {s.min_nm:.1f}-{s.max_nm:.1f} nm, "
+                    f"coverage {100 * s.coverage:.1f} %"
+                )
+            else:
+                line = f"{path.name}: nothing measured (coverage 0 %)"
+            bar.write(line)
+            for w in result.warnings:
+                bar.write(f"{path.name}: warning: {w}")
+            bar.write(f"  -> {written['map']}")
+    bar.close()
+    if failures:
+        return failures[0].exit_code if len(photos) == 1 else 6
+    return 0
+
+
+def register(sub, common) -> None:
+    p = sub.add_parser(
+        "map",
+        parents=[common],
+        help="thickness map from one or more photos",
+        description="Measure film thickness over each photo and write, per photo, "
+        "<stem>.thickness.tif (float32, nm, NaN = not measured), <stem>.confidence.tif "
+        "(0-1), <stem>.reasons.tif (uint8 codes), <stem>.map.png and <stem>.stats.json.",
+    )
+    p.add_argument("photos", nargs="+", metavar="PHOTO", help="PNG, JPEG, TIFF or camera raw")
+    p.add_argument(
+        "--out",
+        metavar="DIR",
+        default="fringemap-out",
+        help="output folder (default ./fringemap-out)",
+    )
+    p.add_argument(
+        "--roi",
+        metavar="ROI",
+        help="where to measure: all, rect:X0,Y0,X1,Y1, circle:CX,CY,R (pixels) or mask:IMAGE",
+    )
+    p.add_argument(
+        "--anchor",
+        metavar="X,Y=NM",
+        action="append",
+        help="a point of known thickness (pixels; nm), e.g. bare substrate = 0 (repeatable)",
+    )
+    add_stack_options(p)
+    p.set_defaults(func=cmd_map)
