@@ -170,8 +170,13 @@ def _band(centre: float, fwhm: float) -> np.ndarray:
     fine = np.arange(GRID_NM[0] - 1, GRID_NM[-1] + 1.001, 0.05)
     sigma = max(fwhm, 0.05) / (2 * np.sqrt(2 * np.log(2)))
     g = np.exp(-0.5 * ((fine - centre) / sigma) ** 2)
-    idx = np.clip(np.round((fine - GRID_NM[0]) / 2.0).astype(int), 0, GRID_NM.size - 1)
-    return np.bincount(idx, weights=g, minlength=GRID_NM.size)
+    # split each fine sample linearly between its two grid neighbours: keeps area and centre
+    pos = np.clip((fine - GRID_NM[0]) / 2.0, 0, GRID_NM.size - 1 - 1e-9)
+    lo = np.floor(pos).astype(int)
+    frac = pos - lo
+    out = np.bincount(lo, weights=g * (1 - frac), minlength=GRID_NM.size)
+    out += np.bincount(lo + 1, weights=g * frac, minlength=GRID_NM.size + 1)[: GRID_NM.size]
+    return out
 
 
 def parse_light(spec: str | Light, *, where: str = "--light") -> Light:

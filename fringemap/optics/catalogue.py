@@ -13,6 +13,8 @@ from __future__ import annotations
 #   kind "constant": payload = complex index
 #   kind "cauchy":   payload = (A, B, C), n = A + B/λ² + C/λ⁴, λ in µm
 #   kind "db+offset": payload = ((shelf, book, page), dn) — database index plus a constant
+#   kind "db-formula": payload = ((shelf, book, page), (lo_nm, hi_nm)) — a dispersion formula
+#                      evaluated a little beyond the range its authors fitted (stated)
 BUILTIN_MATERIALS: dict[str, tuple] = {
     "air": (
         "constant",
@@ -83,15 +85,15 @@ BUILTIN_MATERIALS: dict[str, tuple] = {
         "Rubin, Sol. Energy Mater. 12, 275 (1985)",
     ),
     "pmma": (
-        "db",
-        ("organic", "poly_methyl_methacrylate", "Sultanova"),
-        "poly(methyl methacrylate), Sellmeier",
+        "db-formula",
+        (("organic", "poly_methyl_methacrylate", "Sultanova"), (360.0, 1052.0)),
+        "poly(methyl methacrylate), Sellmeier fitted over 437-1052 nm, extended to 360 nm",
         "Sultanova et al., Acta Phys. Pol. A 116, 585 (2009)",
     ),
     "polystyrene": (
-        "db",
-        ("organic", "polystyrene", "Sultanova"),
-        "polystyrene, Sellmeier",
+        "db-formula",
+        (("organic", "polystyrene", "Sultanova"), (360.0, 1052.0)),
+        "polystyrene, Sellmeier fitted over 437-1052 nm, extended to 360 nm",
         "Sultanova et al., Acta Phys. Pol. A 116, 585 (2009)",
     ),
     "photoresist": (

@@ -75,9 +75,9 @@ class Material:
         lo, hi = self.range_nm
         if wl.size and (np.nanmin(wl) < lo - 1e-9 or np.nanmax(wl) > hi + 1e-9):
             raise OptionError(
-                f"material {self.name!r} has data for {lo:g}-{hi:g} nm only, "
+                f"{self.name!r} has data for {lo:g}-{hi:g} nm only, "
                 f"asked for {np.nanmin(wl):g}-{np.nanmax(wl):g} nm",
-                where="material",
+                where=self.name,
             )
         return np.asarray(self._func(wl), dtype=np.complex128)
 
@@ -234,7 +234,7 @@ def describe_builtins() -> list[dict[str, str]]:
             {
                 "name": name,
                 "aliases": ", ".join(aliases),
-                "model": kind if kind != "db+offset" else "db",
+                "model": "db" if kind.startswith("db") else kind,
                 "description": description,
                 "source": source,
             }
@@ -251,6 +251,10 @@ def _builtin(name: str) -> Material:
     if kind == "db":
         base = _from_database(*payload, where=name)
         return Material(name, description, source, base.range_nm, base._func)
+    if kind == "db-formula":
+        page, extended = payload
+        base = _from_database(*page, where=name)
+        return Material(name, description, source, extended, base._func)
     if kind == "db+offset":
         page, dn = payload
         base = _from_database(*page, where=name)
@@ -305,9 +309,11 @@ def parse_material(spec: str | float | complex | Material, *, where: str = "mate
         _check_index_value(value, where)
         return _constant(value, text, "constant index", "user value")
     if low.startswith("cauchy:"):
-        return _cauchy(_numbers(text[7:], where), text, "Cauchy model", "user coefficients")
+        mat = _cauchy(_numbers(text[7:], where), where, "Cauchy model", "user coefficients")
+        return Material(text, mat.description, mat.source, mat.range_nm, mat._func)
     if low.startswith("sellmeier:"):
-        return _sellmeier(_numbers(text[10:], where), text, "Sellmeier model", "user coefficients")
+        mat = _sellmeier(_numbers(text[10:], where), where, "Sellmeier model", "user coefficients")
+        return Material(text, mat.description, mat.source, mat.range_nm, mat._func)
     if low.startswith("db:"):
         parts = text[3:].split("/")
         if len(parts) != 3:

@@ -105,7 +105,9 @@ class Stack:
                 Layer(parse_material(m, where="stack.layers"), float(d)) for m, d in layers
             ),
             substrate_thickness_nm=substrate_thickness_nm,
-            back_medium=None if back_medium is None else parse_material(back_medium),
+            back_medium=None
+            if back_medium is None
+            else parse_material(back_medium, where="stack.back_medium"),
         )
 
     def describe(self) -> dict:
