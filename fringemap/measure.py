@@ -56,6 +56,8 @@ class MeasureSettings:
     coarse_side = COARSE_SIDE
     k = K
     off_model_factor = 12.0
+    #: beyond range where the coarse map's thickness noise exceeds this fraction of a period
+    max_coarse_sigma = 0.02
 
 
 def parse_anchor(text: str) -> tuple[float, float, float]:
@@ -96,15 +98,76 @@ def _gain_samples(linear, t, table: ColourTable):
     return g, cc
 
 
-def _faded_mask(table: ColourTable, period_nm: float, threshold: float) -> np.ndarray:
-    """Table entries whose colours have faded: running max chroma over one period < threshold."""
+def _faded_mask(
+    table: ColourTable,
+    e_tab: np.ndarray,
+    period_nm: float,
+    threshold: float,
+    noise_rms: float,
+    max_sigma_nm: float,
+) -> np.ndarray:
+    """Table entries beyond the white-light range.
+
+    An entry is faded when the running maximum of CIELAB chroma over one
+    order period is below ``threshold``, or when the colour changes so little
+    with thickness that the noise (``noise_rms``, encoded units) blurs the
+    thickness by more than ``max_sigma_nm``: ``noise / mean|de/dt| > max_sigma``.
+    """
     n = max(3, int(round(period_nm / table.step_nm)))
     chroma = ndimage.maximum_filter1d(table.chroma, size=n, mode="nearest")
-    faded = chroma < threshold
+    slope = np.sqrt(np.sum(np.gradient(e_tab, table.step_nm, axis=0) ** 2, axis=1))
+    slope_env = ndimage.uniform_filter1d(slope, size=n, mode="nearest")
+    faded = (chroma < threshold) | (noise_rms / np.maximum(slope_env, 1e-12) > max_sigma_nm)
     # only the thick end counts as "faded": thin films are legitimately grey
     first_colour = np.argmax(table.chroma > 2 * threshold)
     faded[: first_colour + n] = False
     return faded
+
+
+def _collapse_faded(ct: np.ndarray, cc: np.ndarray, t_faded: float) -> None:
+    """Merge candidates in the faded zone into one at ``t_faded`` (in place).
+
+    Beyond the white-light range the colour no longer says which thickness it
+    is, so all candidates there are one hypothesis, "beyond range", at the
+    zone's start: neighbours in a faded area then agree (no jumps) and the
+    hypothesis competes fairly with the thin-film look-alikes.
+    """
+    if not np.isfinite(t_faded):
+        return
+    faded = ct >= t_faded
+    if not faded.any():
+        return
+    c_f = np.where(faded, cc, np.inf)
+    best = np.argmin(c_f, axis=-1)
+    keep = np.zeros_like(faded)
+    np.put_along_axis(keep, best[..., None], True, axis=-1)
+    drop = faded & ~keep
+    ct[faded] = t_faded
+    ct[drop] = np.nan
+    cc[drop] = np.inf
+
+
+def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
+    """Large dark areas (>= 0.5 % of the photo) and their 2 px rim: no film there."""
+    h, w = dark.shape
+    lab, n = ndimage.label(dark & roi_mask)
+    if not n:
+        return np.zeros((h, w), dtype=bool)
+    sizes = ndimage.sum_labels(np.ones((h, w)), lab, index=np.arange(1, n + 1))
+    big = np.flatnonzero(sizes >= 0.005 * h * w) + 1
+    no_film = np.isin(lab, big)
+    # the blurred rim of the background mixes film and background light: not film
+    return ndimage.binary_dilation(no_film, iterations=2) & roi_mask
+
+
+def _mask_reasons(roi_mask, dark, no_film, saturated) -> np.ndarray:
+    """Reason codes that follow from the masks alone (before any matching)."""
+    reasons = np.zeros(roi_mask.shape, dtype=np.uint8)
+    reasons[~roi_mask] = REASON_CODES["outside-roi"]
+    reasons[roi_mask & dark] = REASON_CODES["too-dark"]
+    reasons[roi_mask & no_film] = REASON_CODES["no-film"]
+    reasons[roi_mask & saturated] = REASON_CODES["saturated"]
+    return reasons
 
 
 def measure(
@@ -184,10 +247,14 @@ def measure(
     lum_enc = encode(np.clip(lum, 0, None))
     saturated = photo.saturated.copy()
     dark = lum_enc < MeasureSettings.dark_encoded
-    if np.all(dark | saturated):
-        problem = "entirely saturated" if saturated.mean() > 0.5 else "entirely dark"
-        raise MeasurementError(f"the photo is {problem}: nothing can be measured", where=where)
-    usable = roi_mask & ~saturated & ~dark
+    if saturated.mean() > 0.98:
+        raise MeasurementError(
+            "the photo is saturated almost everywhere: lower the exposure", where=where
+        )
+    if float(np.percentile(lum_enc, 99.9)) < 0.02:
+        raise MeasurementError("the photo is black: nothing was recorded", where=where)
+    no_film = _background(dark, roi_mask)
+    usable = roi_mask & ~saturated & ~dark & ~no_film
 
     # ---- coarse level: gain field and order selection ------------------------------
     f = max(1, int(np.ceil(max(h, w) / MeasureSettings.coarse_side)))
@@ -208,8 +275,18 @@ def measure(
 
     y_tab = table.rgb @ np.array([0.2126, 0.7152, 0.0722])
     if not valid_c.any():
-        raise MeasurementError(
-            "no usable pixels (all dark, saturated or outside the ROI)", where=where
+        # nothing with a colour: say so with reasons rather than invent a film
+        reasons = _mask_reasons(roi_mask, dark, no_film, saturated)
+        thick_out = np.full((h, w), np.nan, dtype=np.float32)
+        return ThicknessMap(
+            thickness_nm=thick_out,
+            confidence=np.zeros((h, w), dtype=np.float32),
+            reasons=reasons,
+            stats=uniformity(thick_out, mask=roi_mask),
+            recipe=recipe,
+            source=photo.path,
+            provenance={"software": f"fringemap {__version__}", "colour_table": table.key},
+            warnings=("no film found: no pixel in the region of interest has a usable colour",),
         )
     g0 = float(np.percentile((lin_c @ np.array([0.2126, 0.7152, 0.0722]))[valid_c], 99))
     g0 = g0 / float(np.percentile(y_tab, 99))
@@ -223,6 +300,17 @@ def measure(
     )
     sel = None
     q_c = None
+    # the faded end of the table (beyond the white-light range), judged with a nominal
+    # noise for now: 1 % of full scale averaged over the coarse blocks
+    faded_c = _faded_mask(
+        table,
+        e_tab,
+        period,
+        MeasureSettings.faded_chroma,
+        0.01 / f,
+        MeasureSettings.max_coarse_sigma * period,
+    )
+    t_faded = float(table.thickness_nm[np.argmax(faded_c)]) if faded_c.any() else np.inf
     for i, lam in enumerate(passes):
         say(f"gain and orders, pass {i + 1}/{len(passes)}")
         q_c = encode(lin_c / gain_c[..., None])
@@ -239,13 +327,20 @@ def measure(
         cc = np.full((hc, wc, MeasureSettings.k), np.inf)
         ct[valid_c] = cands.thickness_nm
         cc[valid_c] = cands.cost / noise
+        _collapse_faded(ct, cc, t_faded)
         sel = select_orders(
             ct, cc, valid=valid_c, tau_nm=tau, max_jump_nm=max_jump, anchors=anchors_c
         )
         if i == len(passes) - 1:
             break
         samples, cc_model = _gain_samples(lin_c, sel.thickness_nm, table)
-        weights = np.where(valid_c, cc_model / (1.0 + np.nan_to_num(sel.cost, nan=1e3)), 0.0)
+        # neutral colours say little about thickness (thin and faded films are both grey):
+        # the gain is learnt from coloured pixels and carried smoothly to the grey ones
+        chroma_t = np.interp(np.nan_to_num(sel.thickness_nm), table.thickness_nm, table.chroma)
+        colourful = np.clip(chroma_t / 10.0, 0.02, 1.0)
+        weights = np.where(
+            valid_c, colourful * cc_model / (1.0 + np.nan_to_num(sel.cost, nan=1e3)), 0.0
+        )
         gain = fit_gain_field(samples, weights)
         gain_c = gain.evaluate((hc, wc)).astype(np.float64)
     coarse_noise = noise
@@ -317,12 +412,20 @@ def measure(
 
     # ---- reasons and confidence ----------------------------------------------------
     say("reasons")
-    reasons = np.zeros((h, w), dtype=np.uint8)
-    faded = _faded_mask(table, period, MeasureSettings.faded_chroma)
+    faded = _faded_mask(
+        table,
+        e_tab,
+        period,
+        MeasureSettings.faded_chroma,
+        np.sqrt(coarse_noise / 3),
+        MeasureSettings.max_coarse_sigma * period,
+    )
     idx_t = np.clip(
         np.round((np.nan_to_num(thick) - t0) / step).astype(int), 0, table.rgb.shape[0] - 1
     )
     beyond = faded[idx_t] & np.isfinite(thick)
+    # the coarse map put faded areas at the zone's start: beyond range, whatever the pixel
+    beyond |= usable & (pred >= t_faded - 0.5 * step)
     t_max = float(table.thickness_nm[-1])
     beyond |= np.isfinite(thick) & (thick >= t_max - 2 * step) & (t_max > t0)
     off_model = np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full)
@@ -334,18 +437,8 @@ def measure(
         margin[ok_region] = sel.region_margin[region_full[ok_region]]
         rsize[ok_region] = sel.region_size[region_full[ok_region]]
     ambiguous = ok_region & (rsize < 12) & (margin < 0.5)
-    # large dark areas are background (no film); small ones inside the film are too dark
-    dark_lab, n_dark = ndimage.label(dark & roi_mask)
-    no_film = np.zeros((h, w), dtype=bool)
-    if n_dark:
-        sizes = ndimage.sum_labels(np.ones((h, w)), dark_lab, index=np.arange(1, n_dark + 1))
-        big = np.flatnonzero(sizes >= 0.005 * h * w) + 1
-        no_film = np.isin(dark_lab, big)
-    reasons[~roi_mask] = REASON_CODES["outside-roi"]
+    reasons = _mask_reasons(roi_mask, dark, no_film, saturated)
     inside = roi_mask
-    reasons[inside & dark] = REASON_CODES["too-dark"]
-    reasons[inside & no_film] = REASON_CODES["no-film"]
-    reasons[inside & saturated] = REASON_CODES["saturated"]
     measured = inside & usable & np.isfinite(thick)
     reasons[measured & ambiguous] = REASON_CODES["ambiguous-order"]
     reasons[measured & off_model] = REASON_CODES["off-model"]

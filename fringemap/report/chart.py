@@ -157,13 +157,15 @@ def _strip_rows(lo: float, hi: float) -> tuple[float, float, list[tuple[float, f
 
     Ranges up to 600 nm use one row. Longer ranges use rows of 500 nm (up
     to 3000 nm), then 1000 nm, then a round length giving at most 8 rows.
-    Rows start on a whole multiple of the major tick step.
+    Rows start on a whole multiple of the major tick step; the last row ends
+    at the first major tick at or beyond ``hi`` and is drawn shorter, at the
+    same nm per inch.
 
     Returns ``(row_nm, major_nm, [(start, end), ...])``.
     """
     span = hi - lo
     if span <= 600:
-        major = _nice_step(span / 6.0)
+        major = _nice_step(span / 8.0)
         return span, major, [(lo, hi)]
     if span <= 3000:
         row = 500.0
@@ -174,7 +176,11 @@ def _strip_rows(lo: float, hi: float) -> tuple[float, float, list[tuple[float, f
     major = row / 5.0
     start = math.floor(lo / major + 1e-9) * major
     n = max(1, math.ceil((hi - start) / row - 1e-9))
-    return row, major, [(start + i * row, start + (i + 1) * row) for i in range(n)]
+    rows = [(start + i * row, start + (i + 1) * row) for i in range(n)]
+    # the last row stops at the first major tick at or after `hi` (drawn shorter)
+    last_end = min(rows[-1][1], math.ceil(hi / major - 1e-9) * major)
+    rows[-1] = (rows[-1][0], max(last_end, rows[-1][0] + major))
+    return row, major, rows
 
 
 def _describe(table: ColourTable) -> tuple[str, str]:
@@ -267,6 +273,7 @@ def draw_chart(
         )
     lo, hi = float(t[0]), float(t[-1])
     marks = order_marks_nm(stack, angle_deg=angle_deg, max_nm=hi)
+    period = float(marks[0]) if marks.size else math.inf  # t_m = m * t_1
     marks = marks[marks >= lo]
     main_title, subtitle = _describe(table)
     if title:
@@ -277,43 +284,66 @@ def draw_chart(
     top = 1.05  # title + subtitle
     head = 0.42  # a section heading
     strips_h = n_rows * (_MARK_BAND + _STRIP_H + _TICK_BAND) + (n_rows - 1) * _ROW_GAP + 0.32
+    strips_h += 0.1
     bottom = 0.62
-    fig_h = top + head + strips_h + 0.25 + head + _XY_H + bottom
+    fig_h = top + head + strips_h + head + _XY_H + bottom
     fig = _new_figure(_FIG_W, fig_h)
 
     def rect(x_in, y_top_in, w_in, h_in):
         """Axes rectangle from inches measured from the top-left corner."""
         return (x_in / _FIG_W, 1 - (y_top_in + h_in) / fig_h, w_in / _FIG_W, h_in / fig_h)
 
-    fig.text(_LEFT / _FIG_W, 1 - 0.22 / fig_h, main_title, fontsize=_TITLE_PT,
-             fontweight="bold", ha="left", va="top")
-    fig.text(_LEFT / _FIG_W, 1 - 0.62 / fig_h, subtitle, fontsize=_SUB_PT, color="0.25",
-             ha="left", va="top")
+    fig.text(
+        _LEFT / _FIG_W,
+        1 - 0.22 / fig_h,
+        main_title,
+        fontsize=_TITLE_PT,
+        fontweight="bold",
+        ha="left",
+        va="top",
+    )
+    fig.text(
+        _LEFT / _FIG_W,
+        1 - 0.62 / fig_h,
+        subtitle,
+        fontsize=_SUB_PT,
+        color="0.25",
+        ha="left",
+        va="top",
+    )
 
     # (a) strips ---------------------------------------------------------------
     y = top
-    _heading(fig, fig_h, y, "(a) Colour versus film thickness",
-             "\u25bc m = interference order: optical path 2\u00b7n\u00b7t\u00b7cos\u03b8 "
-             "= m \u00d7 550 nm")
+    _heading(
+        fig,
+        fig_h,
+        y,
+        "(a) Colour versus film thickness",
+        "\u25bc m = interference order: optical path 2\u00b7n\u00b7t\u00b7cos\u03b8 "
+        "= m \u00d7 550 nm",
+    )
     y += head
     strip_w = _FIG_W - _LEFT - _RIGHT
     rgb8 = np.round(np.clip(table.srgb, 0, 1) * 255).astype(np.uint8)
     step = table.step_nm
-    period = float(marks[1] - marks[0]) if marks.size > 1 else math.inf
-    if marks.size == 1:
-        period = float(marks[0])
     # label every `stride`-th mark so labels ("m=12" is about 0.45 in) never touch
     spacing_in = period * strip_w / row_nm
     stride = max(1, math.ceil(0.55 / spacing_in)) if math.isfinite(spacing_in) else 1
     for i, (start, end) in enumerate(rows):
-        ax_m = fig.add_axes(rect(_LEFT, y, strip_w, _MARK_BAND))
-        ax_s = fig.add_axes(rect(_LEFT, y + _MARK_BAND, strip_w, _STRIP_H))
+        width = strip_w * (end - start) / row_nm  # same nm per inch in every row
+        ax_m = fig.add_axes(rect(_LEFT, y, width, _MARK_BAND))
+        ax_s = fig.add_axes(rect(_LEFT, y + _MARK_BAND, width, _STRIP_H))
         last = i == n_rows - 1
         sel = (t >= start - 1e-9) & (t <= end + 1e-9)
         if sel.any():
             ts = t[sel]
-            ax_s.imshow(rgb8[sel][None, :, :], extent=(ts[0] - step / 2, ts[-1] + step / 2, 0, 1),
-                        aspect="auto", interpolation="nearest", origin="lower")
+            ax_s.imshow(
+                rgb8[sel][None, :, :],
+                extent=(ts[0] - step / 2, ts[-1] + step / 2, 0, 1),
+                aspect="auto",
+                interpolation="nearest",
+                origin="lower",
+            )
         ax_s.set_xlim(start, end)
         ax_s.set_ylim(0, 1)
         ax_s.set_yticks([])
@@ -321,15 +351,24 @@ def draw_chart(
             ax_s.spines[side].set_color("0.55")
         _thickness_ticks(ax_s, major)
         if lo > start:  # grey hatch where the table does not reach
-            ax_s.axvspan(start, lo - step / 2, facecolor="white", edgecolor="0.8", hatch="///",
-                         linewidth=0)
+            ax_s.axvspan(
+                start, lo - step / 2, facecolor="white", edgecolor="0.8", hatch="///", linewidth=0
+            )
         if hi < end:
-            ax_s.axvspan(hi + step / 2, end, facecolor="white", edgecolor="0.8", hatch="///",
-                         linewidth=0)
-            if hi + step / 2 < end:
-                ax_s.text(0.5 * (hi + end), 0.5, "beyond the table", ha="center", va="center",
-                          fontsize=_NOTE_PT, color="0.45",
-                          bbox={"facecolor": "white", "edgecolor": "none", "pad": 1.5})
+            ax_s.axvspan(
+                hi + step / 2, end, facecolor="white", edgecolor="0.8", hatch="///", linewidth=0
+            )
+            if end - hi > 0.12 * row_nm:
+                ax_s.text(
+                    0.5 * (hi + end),
+                    0.5,
+                    "beyond the table",
+                    ha="center",
+                    va="center",
+                    fontsize=_NOTE_PT,
+                    color="0.45",
+                    bbox={"facecolor": "white", "edgecolor": "none", "pad": 1.5},
+                )
         in_row = marks[(marks >= start) & ((marks < end) | (last & (marks <= end)))]
         ax_m.set_xlim(start, end)
         ax_m.set_ylim(0, 1)
@@ -337,19 +376,39 @@ def draw_chart(
         for mk in in_row:
             m = int(round(mk / period)) if math.isfinite(period) else 1
             labelled = m % stride == 0 or stride == 1
-            ax_m.plot([mk], [0.13], marker="v", markersize=7 if labelled else 4.5,
-                      color="0.15", clip_on=False, linestyle="none")
+            ax_m.plot(
+                [mk],
+                [0.13],
+                marker="v",
+                markersize=7 if labelled else 4.5,
+                color="0.15",
+                clip_on=False,
+                linestyle="none",
+            )
             if labelled:
-                ax_m.text(mk, 0.36, f"m={m}", ha="center", va="bottom", fontsize=_TICK_PT,
-                          clip_on=False)
+                ax_m.text(
+                    mk, 0.36, f"m={m}", ha="center", va="bottom", fontsize=_TICK_PT, clip_on=False
+                )
         y += _MARK_BAND + _STRIP_H + _TICK_BAND + (0 if last else _ROW_GAP)
-        if last:
-            ax_s.set_xlabel("film thickness (nm)", fontsize=_LABEL_PT, labelpad=3)
-    y += 0.32 + 0.25
+        if last:  # centred under the full strip width, whatever this row's length
+            fig.text(
+                (_LEFT + strip_w / 2) / _FIG_W,
+                1 - (y + 0.04) / fig_h,
+                "film thickness (nm)",
+                fontsize=_LABEL_PT,
+                ha="center",
+                va="top",
+            )
+    y += 0.32 + 0.1
 
     # (b) chromaticity -----------------------------------------------------------
-    _heading(fig, fig_h, y, "(b) Colour trajectory on the CIE 1931 xy chromaticity diagram",
-             "trajectory coloured by film thickness; right: enlarged")
+    _heading(
+        fig,
+        fig_h,
+        y,
+        "(b) Colour trajectory on the CIE 1931 xy chromaticity diagram",
+        "trajectory coloured by film thickness; right: enlarged",
+    )
     y += head
     full_box = (-0.02, 0.80, -0.02, 0.90)
     full_w = _XY_H * (full_box[1] - full_box[0]) / (full_box[3] - full_box[2])
@@ -375,8 +434,16 @@ def draw_chart(
         _draw_locus(ax, locus)
         _draw_trajectory(ax, traj, t, cmap, norm, lw)
         _draw_ends(ax, traj)
-        ax.plot(*white, marker="o", markersize=7, markerfacecolor="white",
-                markeredgecolor="black", markeredgewidth=1.4, linestyle="none", zorder=6)
+        ax.plot(
+            *white,
+            marker="o",
+            markersize=7,
+            markerfacecolor="white",
+            markeredgecolor="black",
+            markeredgewidth=1.4,
+            linestyle="none",
+            zorder=6,
+        )
         ax.set_xlim(box[0], box[1])
         ax.set_ylim(box[2], box[3])
         ax.set_xlabel("x", fontsize=_LABEL_PT, style="italic")
@@ -384,11 +451,20 @@ def draw_chart(
         ax.tick_params(labelsize=_TICK_PT)
         ax.grid(color="0.9", linewidth=0.6, zorder=0)
         ax.set_axisbelow(True)
-    _label_locus(ax_f, wl, locus)
-    _legend(ax_f, light, t, marks.size > 0)
-    ax_f.add_patch(Rectangle((zoom_box[0], zoom_box[2]), zoom_box[1] - zoom_box[0],
-                             zoom_box[3] - zoom_box[2], fill=False, edgecolor="0.25",
-                             linestyle="--", linewidth=1.0, zorder=7))
+    ends = _ends(traj)
+    _legend(ax_f, light, t[list(ends)], marks.size > 0, _label_locus(ax_f, wl, locus))
+    ax_f.add_patch(
+        Rectangle(
+            (zoom_box[0], zoom_box[2]),
+            zoom_box[1] - zoom_box[0],
+            zoom_box[3] - zoom_box[2],
+            fill=False,
+            edgecolor="0.25",
+            linestyle="--",
+            linewidth=1.0,
+            zorder=7,
+        )
+    )
     ax_f.set_title("full diagram (dashed box: enlarged area)", fontsize=_TICK_PT, loc="left")
     ax_z.set_title("enlarged", fontsize=_TICK_PT, loc="left")
     _label_zoom(ax_z, zoom_box, (_XY_H, _XY_H), traj, t, marks, period, white, light)
@@ -399,10 +475,24 @@ def draw_chart(
 
 
 def _heading(fig, fig_h: float, y_in: float, text: str, note: str) -> None:
-    fig.text(_LEFT / _FIG_W, 1 - (y_in + 0.06) / fig_h, text, fontsize=_HEAD_PT,
-             fontweight="bold", ha="left", va="top")
-    fig.text(1 - _RIGHT / _FIG_W, 1 - (y_in + 0.09) / fig_h, note, fontsize=_NOTE_PT + 0.5,
-             color="0.3", ha="right", va="top")
+    fig.text(
+        _LEFT / _FIG_W,
+        1 - (y_in + 0.06) / fig_h,
+        text,
+        fontsize=_HEAD_PT,
+        fontweight="bold",
+        ha="left",
+        va="top",
+    )
+    fig.text(
+        1 - _RIGHT / _FIG_W,
+        1 - (y_in + 0.09) / fig_h,
+        note,
+        fontsize=_NOTE_PT + 0.5,
+        color="0.3",
+        ha="right",
+        va="top",
+    )
 
 
 def _thickness_ticks(ax, major: float) -> None:
@@ -431,8 +521,14 @@ def _draw_locus(ax, locus: np.ndarray) -> None:
     closed = np.vstack([locus, locus[:1]])
     ax.fill(closed[:, 0], closed[:, 1], facecolor="0.965", edgecolor="none", zorder=1)
     ax.plot(locus[:, 0], locus[:, 1], color="0.1", linewidth=1.2, zorder=3)
-    ax.plot([locus[-1, 0], locus[0, 0]], [locus[-1, 1], locus[0, 1]], color="0.35",
-            linewidth=1.0, linestyle="--", zorder=3)
+    ax.plot(
+        [locus[-1, 0], locus[0, 0]],
+        [locus[-1, 1], locus[0, 1]],
+        color="0.35",
+        linewidth=1.0,
+        linestyle="--",
+        zorder=3,
+    )
 
 
 def _draw_trajectory(ax, traj, t, cmap, norm, lw: float) -> None:
@@ -441,22 +537,46 @@ def _draw_trajectory(ax, traj, t, cmap, norm, lw: float) -> None:
     seg = np.stack([traj[:-1], traj[1:]], axis=1)
     ok = np.all(np.isfinite(seg), axis=(1, 2))
     mid = 0.5 * (t[:-1] + t[1:])
-    lc = LineCollection(seg[ok], colors=cmap(norm(mid[ok])), linewidths=lw, zorder=4,
-                        capstyle="round", joinstyle="round")
+    lc = LineCollection(
+        seg[ok],
+        colors=cmap(norm(mid[ok])),
+        linewidths=lw,
+        zorder=4,
+        capstyle="round",
+        joinstyle="round",
+    )
     ax.add_collection(lc)
+
+
+def _ends(traj: np.ndarray) -> tuple[int, int]:
+    """Indices of the first and last entries with a chromaticity (black has none)."""
+    ok = np.flatnonzero(np.all(np.isfinite(traj), axis=1))
+    return (int(ok[0]), int(ok[-1])) if ok.size else (0, len(traj) - 1)
 
 
 def _draw_ends(ax, traj: np.ndarray) -> None:
     """Square at the thinnest film's colour, triangle at the thickest's."""
-    for p, marker in ((traj[0], "s"), (traj[-1], "^")):
+    for i, marker in zip(_ends(traj), ("s", "^"), strict=True):
+        p = traj[i]
         if np.all(np.isfinite(p)):
-            ax.plot(*p, marker=marker, markersize=6, color="black", markerfacecolor="white",
-                    linestyle="none", zorder=7)
+            ax.plot(
+                *p,
+                marker=marker,
+                markersize=6,
+                color="black",
+                markerfacecolor="white",
+                linestyle="none",
+                zorder=7,
+            )
 
 
-def _label_locus(ax, wl: np.ndarray, locus: np.ndarray) -> None:
-    """Tick and label chosen wavelengths on the locus, outward from its centre."""
+def _label_locus(ax, wl: np.ndarray, locus: np.ndarray) -> list:
+    """Tick and label chosen wavelengths on the locus, outward from its centre.
+
+    Returns the label Text artists.
+    """
     centre = np.array([0.33, 0.33])
+    labels = []
     for nm in _LOCUS_LABELS_NM:
         i = int(np.argmin(np.abs(wl - nm)))
         p = locus[i]
@@ -471,34 +591,64 @@ def _label_locus(ax, wl: np.ndarray, locus: np.ndarray) -> None:
         q = p + 0.03 * normal
         ha = "left" if normal[0] > 0.3 else ("right" if normal[0] < -0.3 else "center")
         va = "bottom" if normal[1] > 0.3 else ("top" if normal[1] < -0.3 else "center")
-        ax.text(q[0], q[1], f"{nm}", fontsize=_NOTE_PT, ha=ha, va=va, color="0.15", zorder=5)
+        labels.append(
+            ax.text(q[0], q[1], f"{nm}", fontsize=_NOTE_PT, ha=ha, va=va, color="0.15", zorder=5)
+        )
+    return labels
 
 
-def _legend(ax, light: str, t: np.ndarray, with_marks: bool) -> None:
-    """Key to the symbols of both xy panels, in the empty upper right of the diagram."""
+def _legend(ax, light: str, ends_nm: np.ndarray, with_marks: bool, avoid: list) -> None:
+    """Key to the symbols of both xy panels, in the empty upper right of the diagram.
+
+    ``ends_nm`` are the thicknesses of the start and end symbols. Texts in
+    ``avoid`` that the legend would cover are removed.
+    """
     from matplotlib.lines import Line2D
 
     def sym(marker, face, size, label, edge="black"):
-        return Line2D([], [], marker=marker, markersize=size, markerfacecolor=face,
-                      markeredgecolor=edge, linestyle="none", label=label)
+        return Line2D(
+            [],
+            [],
+            marker=marker,
+            markersize=size,
+            markerfacecolor=face,
+            markeredgecolor=edge,
+            linestyle="none",
+            label=label,
+        )
 
     handles = [
-        Line2D([], [], color="0.1", linewidth=1.2, label="spectral locus (nm)"),
+        Line2D([], [], color="0.1", linewidth=1.2, label="spectral locus, nm"),
         Line2D([], [], color="0.35", linewidth=1.0, linestyle="--", label="line of purples"),
-        sym("o", "white", 7, f"white point ({light})"),
-        sym("s", "white", 6, f"start, {t[0]:g} nm"),
-        sym("^", "white", 6, f"end, {t[-1]:g} nm"),
+        sym("o", "white", 7, f"white ({light})"),
+        sym("s", "white", 6, f"{ends_nm[0]:g} nm (start)"),
+        sym("^", "white", 6, f"{ends_nm[1]:g} nm (end)"),
     ]
     if with_marks:
-        handles.append(sym("o", "black", 4.5, "order m (enlarged panel)", edge="white"))
-    ax.legend(handles=handles, loc="upper right", fontsize=_NOTE_PT, frameon=True,
-              framealpha=0.95, edgecolor="0.7", borderpad=0.6, handlelength=1.8)
+        handles.append(sym("o", "black", 4.5, "order marks m", edge="white"))
+    legend = ax.legend(
+        handles=handles,
+        loc="upper right",
+        fontsize=_NOTE_PT,
+        frameon=True,
+        framealpha=0.95,
+        edgecolor="0.7",
+        borderpad=0.5,
+        handlelength=1.6,
+    )
+    # drop any wavelength label the legend would cover
+    renderer = ax.figure.canvas.get_renderer()
+    box = legend.get_window_extent(renderer).padded(2)
+    for text in avoid:
+        if text.get_window_extent(renderer).overlaps(box):
+            text.remove()
 
 
 def _label_zoom(ax, box, size_in, traj, t, marks, period, white, light) -> None:
     """Dot the order marks on the enlarged trajectory and label those that fit.
 
-    Labels are placed greedily (white point, then orders) at the first of eight offsets whose box overlaps no earlier label and stays
+    Only dots with no other dot within 0.3 in are labelled. Labels are
+    placed greedily (white point, then orders) at the first of eight offsets whose box overlaps no earlier label and stays
     inside the axes; a label that fits nowhere is left out.
     """
     x0, x1, y0, y1 = box
@@ -518,9 +668,17 @@ def _label_zoom(ax, box, size_in, traj, t, marks, period, white, light) -> None:
             if any(b[0] < q[1] and q[0] < b[1] and b[2] < q[3] and q[2] < b[3] for q in placed):
                 continue
             placed.append(b)
-            ax.text(x0 + cx / sx, y0 + cy / sy, text, ha="center", va="center",
-                    fontsize=_NOTE_PT, color=colour, zorder=8,
-                    bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.75, "pad": 0.6})
+            ax.text(
+                x0 + cx / sx,
+                y0 + cy / sy,
+                text,
+                ha="center",
+                va="center",
+                fontsize=_NOTE_PT,
+                color=colour,
+                zorder=8,
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.75, "pad": 0.6},
+            )
             return True
         return False
 
@@ -529,20 +687,33 @@ def _label_zoom(ax, box, size_in, traj, t, marks, period, white, light) -> None:
         px, py = (p[0] - x0) * sx, (p[1] - y0) * sy
         placed.append((px - 0.04, px + 0.04, py - 0.04, py + 0.04))
     place(white, f"white ({light})")
-    for p in (traj[0], traj[-1]):  # start and end symbols (see _draw_ends)
+    for p in traj[list(_ends(traj))]:  # start and end symbols (see _draw_ends)
         if np.all(np.isfinite(p)):
             px, py = (p[0] - x0) * sx, (p[1] - y0) * sy
             placed.append((px - 0.05, px + 0.05, py - 0.05, py + 0.05))
-    for mk in marks:
-        p = _interp_xy(traj, t, mk)
+    dots = np.array([_interp_xy(traj, t, mk) for mk in marks]).reshape(-1, 2)
+    dots_in = (dots - [x0, y0]) * [sx, sy]
+    for i, (mk, p) in enumerate(zip(marks, dots, strict=True)):
         if not np.all(np.isfinite(p)):
             continue
-        ax.plot(*p, marker="o", markersize=4.5, markerfacecolor="black",
-                markeredgecolor="white", markeredgewidth=0.8, linestyle="none", zorder=7)
+        ax.plot(
+            *p,
+            marker="o",
+            markersize=4.5,
+            markerfacecolor="black",
+            markeredgecolor="white",
+            markeredgewidth=0.8,
+            linestyle="none",
+            zorder=7,
+        )
+        # a label among crowded dots could be read as another dot's: label only
+        # dots with no other dot within 0.3 in
+        others = np.delete(dots_in, i, axis=0)
+        if others.size and np.min(np.hypot(*(others - dots_in[i]).T)) < 0.3:
+            continue
         m = int(round(mk / period)) if math.isfinite(period) else 1
         place(p, f"m={m}")
 
 
 def _interp_xy(traj: np.ndarray, t: np.ndarray, tk: float) -> np.ndarray:
     return np.array([np.interp(tk, t, traj[:, 0]), np.interp(tk, t, traj[:, 1])])
-

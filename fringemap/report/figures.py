@@ -118,8 +118,9 @@ def _as_map(values, name: str) -> np.ndarray:
 def _reduction(shape: tuple[int, int], max_side_px: int) -> int:
     """Whole-number reduction factor so both sides are at most ``max_side_px``."""
     if not (isinstance(max_side_px, int | np.integer) and max_side_px >= 16):
-        raise OptionError(f"max_side_px must be a whole number >= 16, got {max_side_px!r}",
-                          where="max_side_px")
+        raise OptionError(
+            f"max_side_px must be a whole number >= 16, got {max_side_px!r}", where="max_side_px"
+        )
     return max(1, math.ceil(max(shape) / int(max_side_px)))
 
 
@@ -184,12 +185,14 @@ def _extent(shape_full: tuple[int, int], factor: int, mm_per_px: float | None):
     return ext, lims
 
 
-def _map_axes(shape: tuple[int, int], *, right_in: float, title_lines: int = 1,
-              side_in: float = 7.0):
+def _map_axes(
+    shape: tuple[int, int], *, right_in: float, title_lines: int = 1, side_in: float = 7.0
+):
     """Figure with an image axes sized to the map's aspect ratio.
 
-    Returns ``fig, ax, (x0_in, y0_in, w_in, h_in)`` where the tuple is the
-    axes' box in inches (for placing a colour bar or legend to its right).
+    Returns ``fig, ax, (x0_in, y0_in, w_in, h_in), (fig_w_in, fig_h_in)``: the
+    axes' box and the figure's size in inches (for placing a colour bar or
+    legend to the right of the axes).
     """
     h, w = shape
     aspect = h / w
@@ -276,7 +279,7 @@ def _scale_bar(ax, width_mm: float) -> None:
     )
     bar.size_bar.get_children()[0].set_linewidth(3.0)
     bar.patch.set_facecolor("white")
-    bar.patch.set_alpha(0.85)
+    bar.patch.set_alpha(0.92)
     bar.patch.set_edgecolor("0.4")
     ax.add_artist(bar)
 
@@ -371,8 +374,16 @@ def draw_thickness_map(
         _scale_bar(ax, t.shape[1] * mm_per_px)
     notes = []
     if not finite.size:
-        ax.text(0.5, 0.5, "no measured pixels", transform=ax.transAxes, ha="center",
-                va="center", fontsize=_LABEL_PT, color="black")
+        ax.text(
+            0.5,
+            0.5,
+            "no measured pixels",
+            transform=ax.transAxes,
+            ha="center",
+            va="center",
+            fontsize=_LABEL_PT,
+            color="black",
+        )
     else:
         measured = float(np.isfinite(t).mean()) * 100.0
         notes.append(f"{measured:.1f} % of pixels measured")
@@ -387,8 +398,7 @@ def _footnote(fig, box_in, fig_in, text: str) -> None:
     """Small grey note under the axes' x label, left-aligned with the axes."""
     left, _, _, _ = box_in
     fw, fh = fig_in
-    fig.text(left / fw, 0.06 / fh, text, fontsize=_NOTE_PT, color="0.35", ha="left",
-             va="bottom")
+    fig.text(left / fw, 0.06 / fh, text, fontsize=_NOTE_PT, color="0.35", ha="left", va="bottom")
 
 
 # -------------------------------------------------------------------- reason map
@@ -398,16 +408,19 @@ def _rgb01(colour, code: int) -> tuple[float, float, float]:
     try:
         c = tuple(float(v) for v in colour)
     except (TypeError, ValueError):
-        raise OptionError(f"colour of reason {code} must be an (r, g, b) tuple, got {colour!r}",
-                          where="colours") from None
+        raise OptionError(
+            f"colour of reason {code} must be an (r, g, b) tuple, got {colour!r}", where="colours"
+        ) from None
     if len(c) not in (3, 4) or not all(math.isfinite(v) and v >= 0 for v in c):
-        raise OptionError(f"colour of reason {code} must be an (r, g, b) tuple, got {colour!r}",
-                          where="colours")
+        raise OptionError(
+            f"colour of reason {code} must be an (r, g, b) tuple, got {colour!r}", where="colours"
+        )
     c = c[:3]
     if max(c) > 1.0:  # given as 0-255
         if max(c) > 255:
-            raise OptionError(f"colour of reason {code} is outside 0-255: {colour!r}",
-                              where="colours")
+            raise OptionError(
+                f"colour of reason {code} is outside 0-255: {colour!r}", where="colours"
+            )
         c = tuple(v / 255.0 for v in c)
     return c  # type: ignore[return-value]
 
@@ -453,8 +466,9 @@ def draw_reason_map(
     """
     r = _as_map(reasons_uint8, "reason")
     if r.dtype.kind not in "ui" or (r.size and (r.min() < 0 or r.max() > 255)):
-        raise OptionError(f"reason codes must be integers 0-255, got dtype {r.dtype}",
-                          where="reasons")
+        raise OptionError(
+            f"reason codes must be integers 0-255, got dtype {r.dtype}", where="reasons"
+        )
     r = r.astype(np.uint8, copy=False)
     mm_per_px = _check_scale(scale_px_per_mm)
     counts = np.bincount(r.ravel(), minlength=256)
@@ -483,8 +497,9 @@ def draw_reason_map(
     s = 1.0 if mm_per_px is None else mm_per_px
     ext = (-0.5 * s, (shown.shape[1] * k - 0.5) * s, (shown.shape[0] * k - 0.5) * s, -0.5 * s)
     lims = ((-0.5 * s, (w - 0.5) * s), ((h - 0.5) * s, -0.5 * s))
-    ax.imshow(np.round(rgb * 255).astype(np.uint8), extent=ext, interpolation="nearest",
-              origin="upper")
+    ax.imshow(
+        np.round(rgb * 255).astype(np.uint8), extent=ext, interpolation="nearest", origin="upper"
+    )
     _style_image_axes(ax, lims, "px" if mm_per_px is None else "mm")
     _title(ax, title)
     if mm_per_px is not None:
@@ -509,7 +524,9 @@ def draw_reason_map(
         borderaxespad=0.0,
     )
     if k > 1:
-        _footnote(fig, box, fig_in, f"drawn from every {k}th pixel; shares count every pixel")
+        _footnote(
+            fig, box, fig_in, f"drawn from 1 pixel in {k} along each side; shares count every pixel"
+        )
     return _save_png(fig, path)
 
 
@@ -621,19 +638,25 @@ def draw_histogram(
         try:
             target, tol = (float(v) for v in spec)
         except (TypeError, ValueError):
-            raise OptionError(f"spec must be (target_nm, tol_nm), got {spec!r}",
-                              where="--spec") from None
+            raise OptionError(
+                f"spec must be (target_nm, tol_nm), got {spec!r}", where="--spec"
+            ) from None
         if not (math.isfinite(target) and math.isfinite(tol) and tol >= 0):
-            raise OptionError(f"spec must be a finite target and a tolerance >= 0 nm, got {spec!r}",
-                              where="--spec")
+            raise OptionError(
+                f"spec must be a finite target and a tolerance >= 0 nm, got {spec!r}",
+                where="--spec",
+            )
 
-    fig = _new_figure(8.0, 4.8, constrained=True)
-    ax = fig.add_subplot()
+    fig = _new_figure(9.0, 4.8, constrained=True)
+    gs = fig.add_gridspec(1, 2, width_ratios=(4.0, 1.2))
+    ax = fig.add_subplot(gs[0])
+    side = fig.add_subplot(gs[1])
+    side.axis("off")
     _title(ax, title)
     ax.set_xlabel("thickness (nm)", fontsize=_LABEL_PT)
     ax.set_ylabel("pixels", fontsize=_LABEL_PT)
     ax.tick_params(labelsize=_TICK_PT)
-    lines = [f"n = {vals.size:,}"]
+    lines = [f"n     {vals.size:,}"]
     if vals.size:
         lo, q25, q75, hi = (float(v) for v in np.percentile(vals, [0.1, 25, 75, 99.9]))
         if spec is not None:
@@ -646,31 +669,77 @@ def draw_histogram(
         ax.stairs(counts, edges, fill=True, color="#4a6fa5", alpha=0.85, zorder=2)
         ax.stairs(counts, edges, color="#2b4468", linewidth=0.8, zorder=3)
         ax.set_xlim(lo - 0.02 * (hi - lo), hi + 0.02 * (hi - lo))
-        ax.set_ylim(0, max(counts.max(), 1) * 1.12)
+        ax.set_ylim(0, max(counts.max(), 1) * 1.05)
         mean, std = float(vals.mean()), float(vals.std())
-        lines += [f"mean = {mean:.2f} nm", f"std = {std:.2f} nm"]
+        lines += [
+            f"mean  {mean:.2f} nm",
+            f"std   {std:.2f} nm",
+            f"range {vals.min():.1f}\u2013{vals.max():.1f} nm",
+        ]
         outside = vals.size - int(counts.sum())
         if outside:
-            lines.append(f"{outside:,} outside plotted range")
+            lines.append(f"{outside:,} beyond the\nplotted range")
     else:
-        ax.text(0.5, 0.5, "no measured pixels", transform=ax.transAxes, ha="center",
-                va="center", fontsize=_LABEL_PT)
+        ax.text(
+            0.5,
+            0.5,
+            "no measured pixels",
+            transform=ax.transAxes,
+            ha="center",
+            va="center",
+            fontsize=_LABEL_PT,
+        )
+    handles = []
     if spec is not None:
+        from matplotlib.lines import Line2D
+        from matplotlib.patches import Patch
+
         ax.axvspan(target - tol, target + tol, color="#7fbf7f", alpha=0.18, zorder=1, lw=0)
-        ax.axvline(target, color="#b22222", linestyle="--", linewidth=1.6, zorder=4,
-                   label=f"target {target:g} nm")
+        ax.axvline(target, color="#b22222", linestyle="--", linewidth=1.6, zorder=4)
         for x in (target - tol, target + tol):
             ax.axvline(x, color="#b22222", linestyle="-", linewidth=1.4, zorder=4)
-        ax.plot([], [], color="#b22222", linestyle="-", linewidth=1.4,
-                label=f"limits {target - tol:g}\u2013{target + tol:g} nm")
+        handles = [
+            Line2D(
+                [],
+                [],
+                color="#b22222",
+                linestyle="--",
+                linewidth=1.6,
+                label=f"target {target:g} nm",
+            ),
+            Line2D(
+                [],
+                [],
+                color="#b22222",
+                linestyle="-",
+                linewidth=1.4,
+                label=f"limits \u00b1{tol:g} nm",
+            ),
+            Patch(facecolor="#7fbf7f", alpha=0.35, label="in spec"),
+        ]
         if vals.size:
             ok = np.abs(vals - target) <= tol
-            lines.append(f"in spec = {100.0 * ok.mean():.1f} %")
-        ax.legend(loc="upper left", fontsize=_TICK_PT, frameon=True, framealpha=0.9)
-    ax.text(0.985, 0.96, "\n".join(lines), transform=ax.transAxes, ha="right", va="top",
-            fontsize=_TICK_PT, family="monospace",
-            bbox={"boxstyle": "round,pad=0.4", "facecolor": "white", "edgecolor": "0.6",
-                  "alpha": 0.9}, zorder=5)
+            lines.append(f"in spec {100.0 * ok.mean():.1f} %")
+    if handles:
+        side.legend(
+            handles=handles,
+            loc="upper left",
+            fontsize=_TICK_PT,
+            frameon=False,
+            borderaxespad=0.0,
+            handlelength=1.8,
+        )
+    side.text(
+        0.0,
+        0.76 if handles else 1.0,
+        "\n".join(lines),
+        transform=side.transAxes,
+        ha="left",
+        va="top",
+        fontsize=_TICK_PT,
+        family="monospace",
+        linespacing=1.5,
+    )
     ax.grid(axis="y", color="0.88", linewidth=0.7, zorder=0)
     ax.set_axisbelow(True)
     return _save_png(fig, path)
@@ -680,11 +749,16 @@ def draw_histogram(
 
 #: Half-width of the confidence band at confidence 0, as a share of the span
 #: of the plotted thickness values (see :func:`draw_profiles`).
-BAND_SHARE = 0.06
+BAND_SHARE = 0.08
 
 
-def draw_profiles(profiles: Sequence, path: str | os.PathLike[str], *, scale=None,
-                  title: str = "Thickness profiles") -> Path:
+def draw_profiles(
+    profiles: Sequence,
+    path: str | os.PathLike[str],
+    *,
+    scale=None,
+    title: str = "Thickness profiles",
+) -> Path:
     """Thickness along one or more lines, with a band that widens as confidence falls.
 
     Two panels share the distance axis: thickness (top) and confidence
@@ -694,8 +768,8 @@ def draw_profiles(profiles: Sequence, path: str | os.PathLike[str], *, scale=Non
     The band around each thickness curve is a visual cue, not an
     uncertainty interval: its half-width is
     ``(1 - confidence) * BAND_SHARE * span`` nm, where ``span`` is the range
-    of all plotted thicknesses (at least 1 nm) and ``BAND_SHARE`` = 0.06, so
-    there is no band at confidence 1 and a band of ±6 % of the span at
+    of all plotted thicknesses (at least 1 nm) and ``BAND_SHARE`` = 0.08, so
+    there is no band at confidence 1 and a band of ±8 % of the span at
     confidence 0. Confidence is clipped to 0-1; where it is unknown (NaN)
     there is no band. Unmeasured samples (NaN thickness) leave gaps.
 
@@ -751,16 +825,23 @@ def draw_profiles(profiles: Sequence, path: str | os.PathLike[str], *, scale=Non
         conf = np.clip(c, 0.0, 1.0)
         half = (1.0 - conf) * halfmax
         ok = np.isfinite(t) & np.isfinite(half)
-        ax.fill_between(d, np.where(ok, t - half, np.nan), np.where(ok, t + half, np.nan),
-                        where=ok, color=colour, alpha=0.2, linewidth=0, interpolate=False)
+        ax.fill_between(
+            d,
+            np.where(ok, t - half, np.nan),
+            np.where(ok, t + half, np.nan),
+            where=ok,
+            color=colour,
+            alpha=0.28,
+            linewidth=0,
+            interpolate=False,
+        )
         ax.plot(d, t, color=colour, linewidth=1.6, label=name)
         axc.plot(d, conf, color=colour, linewidth=1.3)
     _title(ax, title)
     ax.set_ylabel("thickness (nm)", fontsize=_LABEL_PT)
     ax.tick_params(labelsize=_TICK_PT, labelbottom=False)
     ax.grid(color="0.9", linewidth=0.7)
-    ax.legend(loc="best", fontsize=_TICK_PT, ncols=min(len(data), 6), frameon=True,
-              framealpha=0.9)
+    ax.legend(loc="best", fontsize=_TICK_PT, ncols=min(len(data), 6), frameon=True, framealpha=0.9)
     axc.set_ylim(-0.04, 1.04)
     axc.set_yticks([0, 0.5, 1])
     axc.axhline(0.5, color="0.55", linewidth=0.8, linestyle=":")
@@ -768,9 +849,14 @@ def draw_profiles(profiles: Sequence, path: str | os.PathLike[str], *, scale=Non
     axc.set_xlabel(f"distance along line ({unit})", fontsize=_LABEL_PT)
     axc.tick_params(labelsize=_TICK_PT)
     axc.grid(color="0.9", linewidth=0.7)
-    fig.text(0.99, 0.005,
-             f"band half-width = (1 \u2212 confidence) \u00d7 {halfmax:.3g} nm "
-             f"({BAND_SHARE:.0%} of the thickness span); none where confidence is unknown",
-             ha="right", va="bottom", fontsize=_NOTE_PT, color="0.35")
-    fig.get_layout_engine().set(h_pad=0.06)
+    # a figure-level x label is laid out by the constrained engine, so the note
+    # never collides with the axis label
+    fig.supxlabel(
+        f"shaded band: half-width = (1 \u2212 confidence) \u00d7 {halfmax:.3g} nm "
+        f"({BAND_SHARE:.0%} of the thickness span), none where confidence is unknown",
+        x=0.99,
+        ha="right",
+        fontsize=_NOTE_PT,
+        color="0.35",
+    )
     return _save_png(fig, path)
