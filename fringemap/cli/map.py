@@ -5,15 +5,13 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ..errors import FringemapError
 from .common import add_stack_options, progress_bar, recipe_from_args, unique_stems
 
 
 def cmd_map(args) -> int:
-    from ..io import read_photo
     from ..io.write import check_no_clash, check_output_dir
-    from ..measure import measure
-    from ..report.outputs import output_paths, write_map_outputs
+    from ..job import MapJob, load_camera_for, run_job
+    from ..report.outputs import output_paths
 
     recipe = recipe_from_args(args)
     recipe.require_stack()
@@ -23,38 +21,34 @@ def cmd_map(args) -> int:
     planned = [p for stem in stems for p in output_paths(out, stem).values()]
     check_no_clash(planned, photos)
     table = recipe.colour_table()
-    failures: list[FringemapError] = []
+    camera = load_camera_for(recipe)
+    job = MapJob(recipe=recipe, out_dir=out, report=getattr(args, "report", False))
+    failed = []
     bar = progress_bar(len(photos), "mapping", args.quiet)
     for path, stem in zip(photos, stems, strict=True):
-        try:
-            photo = read_photo(path)
-            result = measure(photo, recipe, table=table)
-            written = write_map_outputs(result, out, stem)
-        except FringemapError as exc:
-            if args.debug:
-                raise
-            failures.append(exc)
-            print(f"fringemap: error: {exc}", file=sys.stderr)
-            bar.update(1)
-            continue
+        outcome = run_job(path, stem, job, table=table, camera=camera)
         bar.update(1)
+        if outcome.status != "ok":
+            failed.append(outcome)
+            print(f"fringemap: error: {outcome.reason}", file=sys.stderr)
+            continue
         if not args.quiet:
-            s = result.stats
-            if s.count_px:
+            s = outcome.summary
+            if s["count_px"]:
                 line = (
-                    f"{path.name}: mean {s.mean_nm:.1f} nm, median {s.median_nm:.1f} nm, "
-                    f"std {s.std_nm:.2f} nm, range {s.min_nm:.1f}-{s.max_nm:.1f} nm, "
-                    f"coverage {100 * s.coverage:.1f} %"
+                    f"{path.name}: mean {s['mean_nm']:.1f} nm, median {s['median_nm']:.1f} nm, "
+                    f"std {s['std_nm']:.2f} nm, range {s['min_nm']:.1f}-{s['max_nm']:.1f} nm, "
+                    f"coverage {100 * s['coverage']:.1f} %"
                 )
             else:
                 line = f"{path.name}: nothing measured (coverage 0 %)"
             bar.write(line)
-            for w in result.warnings:
+            for w in outcome.warnings:
                 bar.write(f"{path.name}: warning: {w}")
-            bar.write(f"  -> {written['map']}")
+            bar.write(f"  -> {outcome.written['map']}")
     bar.close()
-    if failures:
-        return failures[0].exit_code if len(photos) == 1 else 6
+    if failed:
+        return failed[0].exit_code if len(photos) == 1 else 6
     return 0
 
 
