@@ -20,14 +20,16 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 
-import cv2
 import numpy as np
 from scipy import ndimage
 
 from . import __version__
 from .colour.table import ColourTable, order_marks_nm
+from .colour.transfer import srgb_decode
+from .confidence import classify
 from .errors import MeasurementError, OptionError
-from .matching.candidates import find_candidates, local_search
+from .matching.candidates import find_candidates
+from .matching.fullres import block_mean, dark_mask, fullres_match
 from .matching.gain import fit_gain_field
 from .matching.space import INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL, encode
 from .orders.select import select_orders
@@ -43,7 +45,7 @@ SATURATED_ENCODED = 0.985
 #: CIELAB chroma below which the table's colours count as faded (beyond range)
 FADED_CHROMA = 2.0
 #: long side of the downsampled image used for gain and order selection (px)
-COARSE_SIDE = 320
+COARSE_SIDE = 256
 #: candidates per pixel
 K = 6
 
@@ -73,19 +75,6 @@ def parse_anchor(text: str) -> tuple[float, float, float]:
             f"anchor values must be finite and NM >= 0, got {text!r}", where="--anchor"
         )
     return x, y, t
-
-
-def _block_mean(img: np.ndarray, weight: np.ndarray, f: int) -> tuple[np.ndarray, np.ndarray]:
-    """Weighted block means over f×f blocks; returns (mean (h, w, C), weight fraction (h, w))."""
-    h, w = weight.shape
-    hc, wc = h // f, w // f
-    wt = weight[: hc * f, : wc * f].astype(np.float32)
-    x = img[: hc * f, : wc * f].astype(np.float32) * wt[..., None]
-    s = x.reshape(hc, f, wc, f, -1).sum(axis=(1, 3))
-    n = wt.reshape(hc, f, wc, f).sum(axis=(1, 3))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = s / n[..., None]
-    return mean, n / (f * f)
 
 
 def _gain_samples(linear, t, table: ColourTable):
@@ -243,22 +232,22 @@ def measure(
             raise OptionError(
                 f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where="--anchor"
             )
-    lum = linear @ np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
-    lum_enc = encode(np.clip(lum, 0, None))
-    saturated = photo.saturated.copy()
-    dark = lum_enc < MeasureSettings.dark_encoded
+    linear = np.ascontiguousarray(linear, dtype=np.float32)
+    saturated = photo.saturated
+    dark = dark_mask(linear, float(srgb_decode(np.array(MeasureSettings.dark_encoded))))
     if saturated.mean() > 0.98:
         raise MeasurementError(
             "the photo is saturated almost everywhere: lower the exposure", where=where
         )
-    if float(np.percentile(lum_enc, 99.9)) < 0.02:
+    sample = linear[:: max(1, h // 200), :: max(1, w // 200)] @ np.array([0.2126, 0.7152, 0.0722])
+    if float(np.percentile(sample, 99.9)) < float(srgb_decode(np.array(0.02))):
         raise MeasurementError("the photo is black: nothing was recorded", where=where)
     no_film = _background(dark, roi_mask)
     usable = roi_mask & ~saturated & ~dark & ~no_film
 
     # ---- coarse level: gain field and order selection ------------------------------
     f = max(1, int(np.ceil(max(h, w) / MeasureSettings.coarse_side)))
-    lin_c, frac_c = _block_mean(linear, usable, f)
+    lin_c, frac_c = block_mean(linear, usable, f)
     valid_c = frac_c >= 0.5
     hc, wc = valid_c.shape
     e_tab = encode(table.rgb)
@@ -347,68 +336,53 @@ def measure(
 
     # ---- full resolution -----------------------------------------------------------
     say("full resolution")
-    t_c = sel.thickness_nm
-    filled = t_c.copy()
+    filled = sel.thickness_nm.copy()
     if np.isnan(filled).any() and np.isfinite(filled).any():
         idx = ndimage.distance_transform_edt(
             np.isnan(filled), return_distances=False, return_indices=True
         )
         filled = filled[tuple(idx)]
-    pred = cv2.resize(filled.astype(np.float32), (wc * f, hc * f), interpolation=cv2.INTER_LINEAR)
-    pred = np.pad(pred, ((0, h - hc * f), (0, w - wc * f)), mode="edge")
-    region_full = cv2.resize(
-        sel.region.astype(np.float32), (wc * f, hc * f), interpolation=cv2.INTER_NEAREST
-    )
-    region_full = np.pad(region_full, ((0, h - hc * f), (0, w - wc * f)), mode="edge").astype(int)
-    gain_full = gain.evaluate((h, w))
-    q = encode(linear / gain_full[..., None])
-    flat_q = q.reshape(-1, 3)
-    flat_pred = pred.reshape(-1).astype(np.float64)
-    use = usable.reshape(-1)
-    thick = np.full(h * w, np.nan)
-    cost = np.full(h * w, np.inf)
-    ti, ci, edge = local_search(
-        flat_q[use],
-        e_tab,
+    thick, cost, edge, pred = fullres_match(
+        linear,
+        usable,
+        predicted_coarse_nm=np.nan_to_num(filled, nan=t0),
+        gain_coarse=gain_c,
+        factor=f,
+        table_encoded=e_tab,
         t0_nm=t0,
         step_nm=step,
-        predicted_nm=flat_pred[use],
-        window_nm=0.12 * period + 8,
+        window_nm=0.06 * period + 6,
         intensity_weight=INTENSITY_WEIGHT_FULL,
     )
-    # the noise level at full resolution: robust, from the pixels that fit
-    noise_full = max(
-        float(np.median(ci[np.isfinite(ci)])) if np.isfinite(ci).any() else 1e-4, 3 * 0.002**2
-    )
-    redo = edge | (ci > 6 * noise_full)
-    if redo.any():
-        idx = np.flatnonzero(use)[redo]
+    # the noise level at full resolution: robust, from a sample of the pixels that fit
+    sample_c = cost[:: max(1, h // 300), :: max(1, w // 300)]
+    sample_c = sample_c[np.isfinite(sample_c)]
+    noise_full = max(float(np.median(sample_c)) if sample_c.size else 1e-4, 3 * 0.002**2)
+    # pixels whose prediction was off (steps, scratches): search the whole table there
+    redo = edge | (np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full))
+    n_redo = int(redo.sum())
+    if n_redo:
+        ys, xs = np.nonzero(redo)
+        g = gain.evaluate_at(ys, xs, (h, w))
+        q = encode(linear[ys, xs] / g[:, None])
         gc = find_candidates(
-            flat_q[idx],
+            q,
             e_tab,
             t0_nm=t0,
             step_nm=step,
             k=MeasureSettings.k,
             intensity_weight=INTENSITY_WEIGHT_FULL,
         )
-        p = flat_pred[idx][:, None]
+        p = pred[ys, xs].astype(np.float64)[:, None]
         score = gc.cost / noise_full + ((gc.thickness_nm - p) / (0.3 * period)) ** 2
         score = np.where(np.isfinite(score), score, np.inf)
         best = np.argmin(score, axis=1)
-        rows = np.arange(idx.size)
+        rows = np.arange(ys.size)
         t_alt = gc.thickness_nm[rows, best]
         c_alt = gc.cost[rows, best]
-        better = c_alt < ci[redo]
-        ti_r = ti[redo]
-        ci_r = ci[redo]
-        ti_r[better] = t_alt[better]
-        ci_r[better] = c_alt[better]
-        ti[redo] = ti_r
-        ci[redo] = ci_r
-    thick[use] = ti
-    cost[use] = ci
-    thick = thick.reshape(h, w)
-    cost = cost.reshape(h, w)
+        better = c_alt < cost[ys, xs]
+        thick[ys[better], xs[better]] = t_alt[better]
+        cost[ys[better], xs[better]] = c_alt[better]
 
     # ---- reasons and confidence ----------------------------------------------------
     say("reasons")
@@ -420,42 +394,31 @@ def measure(
         np.sqrt(coarse_noise / 3),
         MeasureSettings.max_coarse_sigma * period,
     )
-    idx_t = np.clip(
-        np.round((np.nan_to_num(thick) - t0) / step).astype(int), 0, table.rgb.shape[0] - 1
+    slope = np.sqrt(np.sum(np.gradient(e_tab, step, axis=0) ** 2, axis=1))
+    thick_out, reasons, conf = classify(
+        roi=roi_mask,
+        dark=dark,
+        no_film=no_film,
+        saturated=saturated,
+        usable=usable,
+        thickness_nm=thick,
+        cost=cost,
+        predicted_nm=pred,
+        region_coarse=sel.region,
+        factor=f,
+        region_margin=sel.region_margin,
+        region_size=sel.region_size,
+        faded=faded,
+        slope_per_nm=slope,
+        t0_nm=t0,
+        step_nm=step,
+        t_faded_nm=t_faded,
+        t_max_nm=float(table.thickness_nm[-1]),
+        noise=noise_full,
+        off_model_factor=MeasureSettings.off_model_factor,
     )
-    beyond = faded[idx_t] & np.isfinite(thick)
-    # the coarse map put faded areas at the zone's start: beyond range, whatever the pixel
-    beyond |= usable & (pred >= t_faded - 0.5 * step)
-    t_max = float(table.thickness_nm[-1])
-    beyond |= np.isfinite(thick) & (thick >= t_max - 2 * step) & (t_max > t0)
-    off_model = np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full)
-    # order confidence from the region the pixel grew in
-    margin = np.zeros((h, w))
-    rsize = np.zeros((h, w))
-    ok_region = region_full >= 0
-    if sel.region_margin.size:
-        margin[ok_region] = sel.region_margin[region_full[ok_region]]
-        rsize[ok_region] = sel.region_size[region_full[ok_region]]
-    ambiguous = ok_region & (rsize < 12) & (margin < 0.5)
-    reasons = _mask_reasons(roi_mask, dark, no_film, saturated)
-    inside = roi_mask
-    measured = inside & usable & np.isfinite(thick)
-    reasons[measured & ambiguous] = REASON_CODES["ambiguous-order"]
-    reasons[measured & off_model] = REASON_CODES["off-model"]
-    reasons[measured & beyond] = REASON_CODES["beyond-range"]
-    reasons[inside & usable & ~np.isfinite(thick)] = REASON_CODES["off-model"]
-    final = reasons == 0
-    # confidence: colour fit x thickness precision x order certainty
-    de = np.gradient(e_tab, step, axis=0)
-    slope = np.sqrt(np.sum(de**2, axis=1))[idx_t]  # encoded units per nm
-    sigma_t = np.sqrt(noise_full / 3) / np.maximum(slope, 1e-6)  # nm
-    conf = (
-        np.exp(-0.5 * cost / (4 * noise_full))
-        / (1 + (sigma_t / 5.0) ** 2)
-        * np.clip(0.5 + margin / 4.0, 0.5, 1.0)
-    )
-    conf = np.where(final, conf, 0.0).astype(np.float32)
-    thick_out = np.where(final, thick, np.nan).astype(np.float32)
+    gain_full_centre = float(gain.evaluate_at(np.array([h // 2]), np.array([w // 2]), (h, w))[0])
+    gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 
     warnings: list[str] = []
     sat_frac = float((saturated & roi_mask).mean())
@@ -470,11 +433,12 @@ def measure(
         "colour_table": table.key,
         "matching_space": table.space,
         "coarse_factor_px": f,
+        "exhaustive_search_px": n_redo,
         "gain": {
             "degree": gain.degree,
             "residual_rms": gain.residual_rms,
-            "median": float(np.median(gain_full)),
-            "corner_to_centre": float(gain_full[0, 0] / gain_full[h // 2, w // 2]),
+            "centre": gain_full_centre,
+            "corner_to_centre": gain_corner / gain_full_centre,
         },
         "noise_rms_encoded": float(np.sqrt(noise_full / 3)),
         "coarse_noise_rms_encoded": float(np.sqrt(coarse_noise / 3)),

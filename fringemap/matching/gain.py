@@ -61,6 +61,13 @@ class GainField:
                 c += 1
         return np.exp(out).astype(np.float32)
 
+    def evaluate_at(self, ys: np.ndarray, xs: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
+        """The gain at pixels (ys, xs) of an image of ``shape`` (H, W), float64 (P,)."""
+        h, w = shape
+        y = (np.asarray(ys) + 0.5) / h * 2 - 1
+        x = (np.asarray(xs) + 0.5) / w * 2 - 1
+        return np.exp(_design(x, y, self.degree) @ self.coefficients)
+
 
 def fit_gain_field(
     samples: np.ndarray,

@@ -1,0 +1,170 @@
+"""Per-pixel reasons and confidence, from the match and the order decisions.
+
+One numba pass over the photo turns the full-resolution match (thickness,
+colour cost), the masks (ROI, saturated, dark, background) and the coarse
+order decisions into the final thickness (NaN where not trustworthy), a
+reason code (:data:`fringemap.result.REASONS`) and a confidence in 0-1::
+
+    confidence = exp(−cost / (8 σ²)) · 1 / (1 + (σ_t / 5 nm)²) · clip(0.5 + margin/4, 0.5, 1)
+
+with σ² the per-channel noise variance of the colour match, σ_t = σ / |de/dt|
+the thickness noise implied by the colour's rate of change at that thickness,
+and ``margin`` the per-pixel cost gap between the chosen order hypothesis of
+the pixel's region and the next best.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+__all__ = ["classify"]
+
+MEASURED, OUTSIDE, NO_FILM, SATURATED, TOO_DARK, OFF_MODEL, AMBIGUOUS, BEYOND = range(8)
+
+
+@njit(cache=True, parallel=True)
+def _classify_kernel(
+    roi,
+    dark,
+    no_film,
+    saturated,
+    usable,
+    thick,
+    cost,
+    pred,
+    region_c,
+    f,
+    margins,
+    sizes,
+    faded,
+    slope,
+    t0,
+    step,
+    t_faded,
+    t_max,
+    noise,
+    off_thr,
+    min_region,
+    out_t,
+    out_r,
+    out_conf,
+):
+    h, w = roi.shape
+    n = faded.shape[0]
+    hc, wc = region_c.shape
+    sigma = np.sqrt(noise / 3.0)
+    for y in prange(h):
+        for x in range(w):
+            out_t[y, x] = np.nan
+            out_conf[y, x] = 0.0
+            if not roi[y, x]:
+                out_r[y, x] = OUTSIDE
+                continue
+            if saturated[y, x]:
+                out_r[y, x] = SATURATED
+                continue
+            if no_film[y, x]:
+                out_r[y, x] = NO_FILM
+                continue
+            if dark[y, x]:
+                out_r[y, x] = TOO_DARK
+                continue
+            t = thick[y, x]
+            if not usable[y, x] or not np.isfinite(t):
+                out_r[y, x] = OFF_MODEL
+                continue
+            i = int(round((t - t0) / step))
+            if i < 0:
+                i = 0
+            if i > n - 1:
+                i = n - 1
+            if (
+                faded[i]
+                or pred[y, x] >= t_faded - 0.5 * step
+                or (t >= t_max - 2 * step and t_max > t0)
+            ):
+                out_r[y, x] = BEYOND
+                continue
+            c = cost[y, x]
+            if c > off_thr:
+                out_r[y, x] = OFF_MODEL
+                continue
+            cy = min(hc - 1, y // f)
+            cx = min(wc - 1, x // f)
+            reg = region_c[cy, cx]
+            margin = 0.0
+            if reg >= 0:
+                margin = margins[reg]
+                if sizes[reg] < min_region and margin < 0.5:
+                    out_r[y, x] = AMBIGUOUS
+                    continue
+            out_r[y, x] = MEASURED
+            out_t[y, x] = t
+            sig_t = sigma / max(slope[i], 1e-6)
+            m = 0.5 + margin / 4.0
+            if m > 1.0:
+                m = 1.0
+            out_conf[y, x] = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
+
+
+def classify(
+    *,
+    roi,
+    dark,
+    no_film,
+    saturated,
+    usable,
+    thickness_nm,
+    cost,
+    predicted_nm,
+    region_coarse,
+    factor,
+    region_margin,
+    region_size,
+    faded,
+    slope_per_nm,
+    t0_nm,
+    step_nm,
+    t_faded_nm,
+    t_max_nm,
+    noise,
+    off_model_factor,
+    min_region_px=12,
+):
+    """Final thickness (float32, NaN = not measured), reasons (uint8) and confidence (float32).
+
+    All maps are (H, W); ``region_coarse`` is the coarse region label map
+    (block size ``factor``); ``faded`` and ``slope_per_nm`` are per table entry.
+    """
+    h, w = roi.shape
+    out_t = np.empty((h, w), dtype=np.float32)
+    out_r = np.empty((h, w), dtype=np.uint8)
+    out_c = np.empty((h, w), dtype=np.float32)
+    _classify_kernel(
+        roi,
+        dark,
+        no_film,
+        saturated,
+        usable,
+        thickness_nm,
+        cost,
+        predicted_nm,
+        np.ascontiguousarray(region_coarse, dtype=np.int32),
+        int(factor),
+        np.asarray(region_margin, dtype=np.float64),
+        np.asarray(region_size, dtype=np.int64),
+        np.asarray(faded, dtype=np.bool_),
+        np.asarray(slope_per_nm, dtype=np.float64),
+        float(t0_nm),
+        float(step_nm),
+        float(t_faded_nm),
+        float(t_max_nm),
+        float(noise),
+        float(off_model_factor * noise),
+        int(min_region_px),
+        out_t,
+        out_r,
+        out_c,
+    )
+    return out_t, out_r, out_c
