@@ -110,8 +110,13 @@ _CIE_LIGHTS = ("A", "C", "D50", "D55", "D60", "D65", "D75", "E")
 @lru_cache(maxsize=1)
 def light_names() -> list[str]:
     """Names of the bundled CIE illuminants (F-series spelt both ways)."""
-    colour = _colour()
-    names = [k for k in colour.SDS_ILLUMINANTS if k in _CIE_LIGHTS or k.startswith(("FL", "LED"))]
+    from ..data import bundle
+
+    keys = [k[6:] for k in bundle() if k.startswith("light/")]
+    if not keys:
+        colour = _colour()
+        keys = list(colour.SDS_ILLUMINANTS)
+    names = [k for k in keys if k in _CIE_LIGHTS or k.startswith(("FL", "LED"))]
     return names + [f"F{k[2:]}" for k in names if re.fullmatch(r"FL\d+", k)]
 
 
@@ -232,6 +237,16 @@ def parse_light(spec: str | Light, *, where: str = "--light") -> Light:
 
 @lru_cache(maxsize=32)
 def _named_light(key: str, where: str) -> Light:
+    from ..data import bundle
+
+    dataset_key = "FL" + key[1:] if re.fullmatch(r"F\d+", key) else key
+    power = bundle().get(f"light/{dataset_key}")
+    if power is None:
+        return _named_light_live(key, where)
+    return Light(dataset_key, f"CIE illuminant {dataset_key}", power)
+
+
+def _named_light_live(key: str, where: str) -> Light:
     colour = _colour()
     names = {n.upper(): n for n in light_names()}
     if key not in names:
@@ -292,6 +307,16 @@ def parse_detector(spec: str | Detector, *, where: str = "--sensor") -> Detector
 
 @lru_cache(maxsize=8)
 def _named_detector(key: str) -> Detector:
+    from ..data import bundle
+
+    curves = bundle().get(f"detector/{key}")
+    if curves is None:
+        return _named_detector_live(key)
+    kind, dataset_key, description = _DETECTORS[key]
+    return Detector(key, f"{description} ({dataset_key}, colour-science)", kind, curves)
+
+
+def _named_detector_live(key: str) -> Detector:
     colour = _colour()
     kind, dataset_key, description = _DETECTORS[key]
     if kind == "observer":

@@ -242,7 +242,34 @@ def describe_builtins() -> list[dict[str, str]]:
     return rows
 
 
+@lru_cache(maxsize=64)
 def _builtin(name: str) -> Material:
+    """A built-in material, from the bundled tabulation when there is one."""
+    from ..data import bundle
+
+    kind, payload, description, source = BUILTIN_MATERIALS[name]
+    table = bundle().get(f"material/{name}")
+    if table is None or not kind.startswith("db"):
+        return _builtin_live(name)
+    wl, n, k = table[:, 0].copy(), table[:, 1].copy(), table[:, 2].copy()
+
+    def func(w: np.ndarray) -> np.ndarray:
+        return np.interp(w, wl, n) + 1j * np.interp(w, wl, k)
+
+    live_range = _builtin_range(name)
+    return Material(
+        name, description, source, (max(live_range[0], wl[0]), min(live_range[1], wl[-1])), func
+    )
+
+
+def _builtin_range(name: str) -> tuple[float, float]:
+    kind, payload, *_ = BUILTIN_MATERIALS[name]
+    if kind == "db-formula":
+        return payload[1]
+    return (0.0, np.inf)
+
+
+def _builtin_live(name: str) -> Material:
     kind, payload, description, source = BUILTIN_MATERIALS[name]
     if kind == "constant":
         return _constant(payload, name, description, source)
