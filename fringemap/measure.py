@@ -20,6 +20,7 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 
+import cv2
 import numpy as np
 from scipy import ndimage
 
@@ -139,14 +140,19 @@ def _collapse_faded(ct: np.ndarray, cc: np.ndarray, t_faded: float) -> None:
 def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
     """Large dark areas (>= 0.5 % of the photo) and their 2 px rim: no film there."""
     h, w = dark.shape
-    lab, n = ndimage.label(dark & roi_mask)
-    if not n:
+    n, labels, stats, _ = cv2.connectedComponentsWithStats(
+        (dark & roi_mask).view(np.uint8), connectivity=8
+    )
+    if n <= 1:
         return np.zeros((h, w), dtype=bool)
-    sizes = ndimage.sum_labels(np.ones((h, w)), lab, index=np.arange(1, n + 1))
-    big = np.flatnonzero(sizes >= 0.005 * h * w) + 1
-    no_film = np.isin(lab, big)
+    big = np.zeros(n, dtype=bool)
+    big[1:] = stats[1:, cv2.CC_STAT_AREA] >= 0.005 * h * w
+    if not big.any():
+        return np.zeros((h, w), dtype=bool)
+    no_film = big[labels].view(np.uint8)
     # the blurred rim of the background mixes film and background light: not film
-    return ndimage.binary_dilation(no_film, iterations=2) & roi_mask
+    no_film = cv2.dilate(no_film, np.ones((5, 5), np.uint8)).view(bool)
+    return no_film & roi_mask
 
 
 def _mask_reasons(roi_mask, dark, no_film, saturated) -> np.ndarray:

@@ -289,7 +289,11 @@ def _write_tiff(path: str | os.PathLike[str], values: np.ndarray, description: d
         tifffile.imwrite(
             temporary,
             values,
+            # zlib at its fastest level: float maps barely compress harder, and level 6
+            # costs seconds per 12-megapixel map
             compression="zlib",
+            compressionargs={"level": 1},
+            maxworkers=2,
             description=text,
             metadata=None,
             software=f"fringemap {__version__}",
