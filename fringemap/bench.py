@@ -1,0 +1,250 @@
+"""Benchmark: time each stage on simulated 1, 12 and 24 megapixel photos.
+
+Run ``python -m fringemap.bench`` (``--help`` for options). For each size it
+prints the median over repeats of each stage's seconds, pixels per second,
+the peak resident memory of a fresh process measuring that photo, and two
+ratios measured in the same run:
+
+* against a brute-force reference — every pixel compared with every colour
+  table entry in numpy, timed on a sample of pixels and extrapolated;
+* against one memory pass over the linear image (the physical floor: reading
+  every pixel once).
+
+It also times ``fringemap map`` end to end on the 12 MP JPEG (start-up,
+decode and writing included). Figures depend on the machine: quote medians and
+ratios, and run it on an idle machine.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+SIZES_MP = {1: (1000, 1000), 12: (3000, 4000), 24: (4000, 6000)}
+
+
+def _recipe():
+    from .recipe import Recipe
+
+    return Recipe.from_dict(
+        {"stack": {"film": "sio2", "substrate": "si"}, "light": {"source": "F11"}}
+    )
+
+
+def make_photo(folder: Path, mp: int) -> Path:
+    """A simulated oxide-on-silicon JPEG of ``mp`` megapixels (rendered at 1 MP, resized)."""
+    import cv2
+
+    from . import simulate as sim
+    from .optics.stack import Stack
+
+    path = folder / f"bench-{mp}mp.jpg"
+    if path.exists():
+        return path
+    h, w = SIZES_MP[mp]
+    small = (750, 1000)
+    t = 150 + 750 * sim.wedge(small, t0_nm=0, t1_nm=1, axis="x")
+    t = t + 25 * np.sin(np.arange(small[0])[:, None] / 60.0)
+    photo = sim.render_photo(
+        t,
+        stack=Stack.from_names(film="sio2", substrate="si"),
+        light="F11",
+        film_mask=sim.frame_mask(small, margin_px=25),
+        noise=0.0,
+        blur_px=0.5,
+        seed=1,
+    )
+    img = cv2.resize(photo.image, (w, h), interpolation=cv2.INTER_LINEAR).astype(np.float32)
+    img += np.random.default_rng(2).normal(0, 2.5, img.shape).astype(np.float32)
+    img = np.clip(np.round(img), 0, 255).astype(np.uint8)
+    cv2.imwrite(str(path), img[..., ::-1], [cv2.IMWRITE_JPEG_QUALITY, 90])
+    return path
+
+
+def _stages(path: Path, repeat: int) -> dict:
+    """Time each stage ``repeat`` times in this process; medians."""
+    from PIL import Image
+
+    from .io import read_photo
+    from .measure import measure
+    from .report.outputs import write_map_outputs
+
+    recipe = _recipe()
+    table = recipe.colour_table()
+    measure(read_photo(path), recipe, table=table)  # warm: compiled kernels loaded
+    rows: dict[str, list[float]] = {}
+
+    def add(key, value):
+        rows.setdefault(key, []).append(value)
+
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        with Image.open(path) as im:
+            im.load()
+        add("decode", time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        photo = read_photo(path)
+        add("read_photo (decode + linearise)", time.perf_counter() - t0)
+        marks: list[tuple[str, float]] = []
+        t0 = time.perf_counter()
+        result = measure(
+            photo,
+            recipe,
+            table=table,
+            progress=lambda s, m=marks: m.append((s, time.perf_counter())),
+        )
+        total = time.perf_counter() - t0
+        marks.append(("end", time.perf_counter()))
+        add("compute (measure, decode excluded)", total)
+        starts = {}
+        for (name, t_a), (_, t_b) in zip(marks[:-1], marks[1:], strict=True):
+            key = name.split(",")[0]
+            starts[key] = starts.get(key, 0.0) + (t_b - t_a)
+        first = marks[0][1] - t0
+        add("masks and downsampling", first)
+        add("candidates + order selection (coarse passes)", starts.get("gain and orders", 0.0))
+        add("full-resolution refine", starts.get("full resolution", 0.0))
+        add("reasons, confidence, statistics", starts.get("reasons", 0.0))
+        with tempfile.TemporaryDirectory() as tmp:
+            t0 = time.perf_counter()
+            write_map_outputs(result, tmp, "bench")
+            add("write outputs", time.perf_counter() - t0)
+    linear = photo.linear
+    floor = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        float(linear.sum(dtype=np.float64))
+        floor.append(time.perf_counter() - t0)
+    med = {k: float(np.median(v)) for k, v in rows.items()}
+    med["memory pass (floor)"] = float(np.median(floor))
+    med["pixels"] = int(linear.shape[0] * linear.shape[1])
+    return med
+
+
+def brute_force_seconds(n_pixels: int, sample: int = 20000) -> float:
+    """Seconds a numpy brute force (every pixel × every table entry) would take."""
+    from .matching.space import INTENSITY_WEIGHT_FULL, distance, encode
+
+    table = _recipe().colour_table()
+    e = encode(table.rgb)
+    q = np.random.default_rng(0).uniform(0.1, 0.9, (sample, 3))
+    t0 = time.perf_counter()
+    for chunk in np.array_split(q, 20):
+        d = distance(chunk[:, None, :], e[None, :, :], intensity_weight=INTENSITY_WEIGHT_FULL)
+        d.argmin(axis=1)
+    per_px = (time.perf_counter() - t0) / sample
+    return per_px * n_pixels
+
+
+def _child(path: str, repeat: int) -> None:
+    """Run in a fresh process: stage timings and peak memory as JSON on stdout."""
+    med = _stages(Path(path), repeat)
+    med["peak_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    print(json.dumps(med))
+
+
+def main(argv: list[str] | None = None) -> int:
+    p = argparse.ArgumentParser(
+        prog="python -m fringemap.bench", description=__doc__.split("\n")[0]
+    )
+    p.add_argument("--sizes", default="1,12,24", help="megapixels to test (of 1, 12, 24)")
+    p.add_argument("--repeat", type=int, default=3, help="repeats per size (median)")
+    p.add_argument("--folder", default=None, help="where to keep the simulated photos")
+    p.add_argument("--json", metavar="FILE", help="also write all figures as JSON")
+    p.add_argument("--child", help=argparse.SUPPRESS)
+    args = p.parse_args(argv)
+    if args.child:
+        _child(args.child, args.repeat)
+        return 0
+    folder = Path(args.folder or tempfile.mkdtemp(prefix="fringemap-bench-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    sizes = [int(s) for s in args.sizes.split(",")]
+    print(
+        f"machine: {os.cpu_count()} CPUs, python {sys.version.split()[0]}, numpy {np.__version__}"
+    )
+    results = {}
+    for mp in sizes:
+        path = make_photo(folder, mp)
+        out = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "fringemap.bench",
+                "--child",
+                str(path),
+                "--repeat",
+                str(args.repeat),
+            ],
+            capture_output=True,
+            text=True,
+            check=True,
+        )
+        med = json.loads(out.stdout.strip().splitlines()[-1])
+        brute = brute_force_seconds(med["pixels"])
+        med["brute_force_s"] = brute
+        results[mp] = med
+        compute = med["compute (measure, decode excluded)"]
+        print(f"\n{mp} MP ({med['pixels']:,} px), medians of {args.repeat}:")
+        for k, v in med.items():
+            if k not in ("pixels", "peak_rss_mb", "brute_force_s"):
+                print(f"  {k:<48} {v:8.3f} s")
+        print(f"  {'pixels per second (compute)':<48} {med['pixels'] / compute:12,.0f}")
+        print(f"  {'peak memory (fresh process)':<48} {med['peak_rss_mb']:8.0f} MB")
+        print(
+            f"  {'brute force (numpy, extrapolated)':<48} {brute:8.1f} s"
+            f"  -> {brute / compute:.0f}x faster"
+        )
+        print(f"  {'compute / one memory pass':<48} {compute / med['memory pass (floor)']:8.0f}x")
+    if 12 in results and 24 in results:
+        r = (
+            results[24]["compute (measure, decode excluded)"]
+            / results[12]["compute (measure, decode excluded)"]
+        )
+        print(f"\n24 MP / 12 MP compute time: {r:.2f}")
+    if 12 in sizes:
+        path = make_photo(folder, 12)
+        times = []
+        for _ in range(args.repeat):
+            with tempfile.TemporaryDirectory() as tmp:
+                t0 = time.perf_counter()
+                subprocess.run(
+                    [
+                        sys.executable,
+                        "-m",
+                        "fringemap",
+                        "map",
+                        str(path),
+                        "--film",
+                        "sio2",
+                        "--substrate",
+                        "si",
+                        "--light",
+                        "F11",
+                        "--out",
+                        tmp,
+                        "-q",
+                    ],
+                    check=True,
+                )
+                times.append(time.perf_counter() - t0)
+        results["map_12mp_end_to_end_s"] = float(np.median(times))
+        print(
+            f"\nfringemap map, 12 MP JPEG, end to end (start-up, decode, write): "
+            f"{np.median(times):.2f} s (median of {args.repeat})"
+        )
+    if args.json:
+        Path(args.json).write_text(json.dumps(results, indent=2))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
