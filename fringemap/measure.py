@@ -285,7 +285,6 @@ def measure(
         )
     g0 = float(np.percentile((lin_c @ np.array([0.2126, 0.7152, 0.0722]))[valid_c], 99))
     g0 = g0 / float(np.percentile(y_tab, 99))
-    gain_c = np.full((hc, wc), g0, dtype=np.float64)
     gain = None
     passes = (
         INTENSITY_WEIGHT_CHROMA,
@@ -306,8 +305,25 @@ def measure(
         MeasureSettings.max_coarse_sigma * period,
     )
     t_faded = float(table.thickness_nm[np.argmax(faded_c)]) if faded_c.any() else np.inf
+    # the first, chromaticity-led passes only need the gain's broad shape: half resolution
+    f_half = 2 * f
+    lin_h, frac_h = block_mean(linear, usable, f_half)
+    levels = {f: (lin_c, valid_c), f_half: (lin_h, frac_h >= 0.5)}
+    full_lin_c, full_valid_c = lin_c, valid_c
+    factors = [
+        f_half if lam == INTENSITY_WEIGHT_CHROMA and valid_c.sum() > 4000 else f for lam in passes
+    ]
+    gain_c = np.full(levels[factors[0]][1].shape, g0, dtype=np.float64)
     for i, lam in enumerate(passes):
         say(f"gain and orders, pass {i + 1}/{len(passes)}")
+        lin_c, valid_c = levels[factors[i]]
+        hc, wc = valid_c.shape
+        fi = factors[i]
+        anchors_c = tuple(
+            (min(wc - 1, int(x // fi)), min(hc - 1, int(y // fi)), t) for x, y, t in anchors
+        )
+        if gain_c.shape != (hc, wc):
+            gain_c = gain.evaluate((hc, wc)).astype(np.float64)
         q_c = encode(lin_c / gain_c[..., None])
         cands = find_candidates(
             q_c[valid_c],
@@ -337,8 +353,11 @@ def measure(
             valid_c, colourful * cc_model / (1.0 + np.nan_to_num(sel.cost, nan=1e3)), 0.0
         )
         gain = fit_gain_field(samples, weights)
-        gain_c = gain.evaluate((hc, wc)).astype(np.float64)
+        nxt = levels[factors[i + 1]][1].shape
+        gain_c = gain.evaluate(nxt).astype(np.float64)
     coarse_noise = noise
+    lin_c, valid_c = full_lin_c, full_valid_c
+    hc, wc = valid_c.shape
 
     # ---- full resolution -----------------------------------------------------------
     say("full resolution")
@@ -434,6 +453,14 @@ def measure(
     if stats.coverage < 0.01:
         warnings.append("no film found: coverage is below 1 % of the region of interest")
     big_regions = np.argsort(-sel.region_size)[:3]
+    for r in big_regions:
+        share = sel.region_size[r] / max(1, int(valid_c.sum()))
+        if share > 0.1 and not sel.region_anchored[r] and sel.region_margin[r] < 1.0:
+            warnings.append(
+                f"the fringe order of a film area covering {100 * share:.0f} % of the photo is "
+                f"uncertain (order margin {sel.region_margin[r]:.2f}): the next order fits "
+                "almost as well; give an --anchor X,Y=NM of known thickness"
+            )
     provenance = {
         "software": f"fringemap {__version__}",
         "colour_table": table.key,

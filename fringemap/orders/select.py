@@ -118,13 +118,13 @@ def _predict(p, h, w, state_t, assigned):
         if y1 < 0 or y1 >= h or x1 < 0 or x1 >= w:
             continue
         n1 = y1 * w + x1
-        if not assigned[n1]:
+        if not assigned[n1] or not np.isfinite(state_t[n1]):
             continue
         y2, x2 = y1 + dy, x1 + dx
         est = state_t[n1]
         if 0 <= y2 < h and 0 <= x2 < w:
             n2 = y2 * w + x2
-            if assigned[n2]:
+            if assigned[n2] and np.isfinite(state_t[n2]):
                 est = 2.0 * state_t[n1] - state_t[n2]
                 # damp extrapolation: halfway between flat and linear
                 est = 0.5 * (est + state_t[n1])
