@@ -55,8 +55,18 @@ from .errors import InputFileError, OptionError, OutputError
 from .optics.stack import Stack, reflectance
 
 __all__ = [
-    "wedge", "bowl", "bump", "draining_film", "scratch", "disc_mask", "frame_mask",
-    "read_thickness", "render_photo", "SimulatedPhoto", "write_simulated", "SCENARIOS",
+    "wedge",
+    "bowl",
+    "bump",
+    "draining_film",
+    "scratch",
+    "disc_mask",
+    "frame_mask",
+    "read_thickness",
+    "render_photo",
+    "SimulatedPhoto",
+    "write_simulated",
+    "SCENARIOS",
     "write_demo_images",
 ]
 
@@ -119,8 +129,9 @@ def wedge(shape, *, t0_nm: float, t1_nm: float, axis: int | str = "x") -> np.nda
     return np.broadcast_to(ramp[:, None] if ax == 0 else ramp[None, :], (h, w)).copy()
 
 
-def bowl(shape, *, centre_nm: float, edge_nm: float, radius_px: float | None = None,
-         centre=None) -> np.ndarray:
+def bowl(
+    shape, *, centre_nm: float, edge_nm: float, radius_px: float | None = None, centre=None
+) -> np.ndarray:
     """A radial paraboloid: ``centre_nm`` at the centre, ``edge_nm`` at ``radius_px``, (H, W) nm.
 
     ``radius_px`` defaults to half the smaller side; beyond it the parabola
@@ -144,8 +155,15 @@ def bump(shape, *, base_nm: float, height_nm: float, sigma_px: float, centre=Non
     return base + height * np.exp(-((x - cx) ** 2 + (y - cy) ** 2) / (2 * sigma**2))
 
 
-def draining_film(shape, *, top_nm: float, bottom_nm: float, black_nm: float = 25.0,
-                  black_fraction: float = 0.15, wobble: float = 0.02) -> np.ndarray:
+def draining_film(
+    shape,
+    *,
+    top_nm: float,
+    bottom_nm: float,
+    black_nm: float = 25.0,
+    black_fraction: float = 0.15,
+    wobble: float = 0.02,
+) -> np.ndarray:
     """A vertical soap film draining under gravity, float64 (H, W) nm.
 
     A band of black film (``black_nm``) covers the top ``black_fraction`` of
@@ -169,8 +187,9 @@ def draining_film(shape, *, top_nm: float, bottom_nm: float, black_nm: float = 2
     return np.where(y < yb, black, t)
 
 
-def scratch(t: np.ndarray, *, start_xy, end_xy, width_px: float,
-            depth_to_nm: float = 0.0) -> np.ndarray:
+def scratch(
+    t: np.ndarray, *, start_xy, end_xy, width_px: float, depth_to_nm: float = 0.0
+) -> np.ndarray:
     """A copy of ``t`` (H, W) nm with a straight scratch down to ``depth_to_nm``.
 
     Pixels whose centre lies within ``width_px / 2`` of the segment from
@@ -263,8 +282,13 @@ def _film_colours(t_film, stack, renderer, angle_deg, numerical_aperture, step_n
     grid = lo + step_nm * np.arange(n)
     rgb = np.empty((n, 3))
     for i in range(0, n, _CHUNK):
-        R = reflectance(stack, thickness_nm=grid[i : i + _CHUNK], wavelength_nm=GRID_NM,
-                        angle_deg=angle_deg, numerical_aperture=numerical_aperture)
+        R = reflectance(
+            stack,
+            thickness_nm=grid[i : i + _CHUNK],
+            wavelength_nm=GRID_NM,
+            angle_deg=angle_deg,
+            numerical_aperture=numerical_aperture,
+        )
         rgb[i : i + _CHUNK] = renderer.rgb(R)
     out = np.empty((t_film.size, 3))
     for c in range(3):
@@ -284,12 +308,27 @@ def _gain(shape, vignetting: float, lamp_gradient: float) -> np.ndarray:
 
 
 def render_photo(
-    thickness_nm, *, stack: Stack, light, sensor="cie1931", angle_deg: float = 0.0,
-    numerical_aperture: float = 0.0, film_mask=None, background_reflectance: float = 0.0,
-    exposure: float | str = "auto", exposure_factor: float = 1.0, vignetting: float = 0.3,
-    lamp_gradient: float = 0.1, blur_px: float = 1.0, noise: float = 0.01,
-    jpeg_quality: int | None = None, white_balance_error=(1.0, 1.0, 1.0), seed: int = 0,
-    output: str = "srgb8", step_nm: float = 0.25,
+    thickness_nm,
+    *,
+    stack: Stack,
+    light,
+    sensor="cie1931",
+    angle_deg: float = 0.0,
+    numerical_aperture: float = 0.0,
+    film_mask=None,
+    background_reflectance: float = 0.0,
+    exposure: float | str = "auto",
+    exposure_factor: float = 1.0,
+    vignetting: float = 0.3,
+    lamp_gradient: float = 0.1,
+    blur_px: float = 1.0,
+    noise: float = 0.01,
+    jpeg_quality: int | None = None,
+    white_balance_error=(1.0, 1.0, 1.0),
+    seed: int = 0,
+    output: str = "srgb8",
+    step_nm: float = 0.25,
+    camera_to_srgb: str = "none",
 ) -> SimulatedPhoto:
     """Render a photo of a film with thickness map ``thickness_nm``.
 
@@ -329,6 +368,12 @@ def render_photo(
         Seed of the noise.
     output : {"srgb8", "srgb16", "linear"}
         8- or 16-bit sRGB-encoded, or float32 linear (clipped to 0-1).
+    camera_to_srgb : {"none", "chart"}
+        For a camera sensor: ``"none"`` writes white-balanced camera RGB as if it
+        had sRGB primaries (an uncalibrated pipeline); ``"chart"`` first applies the
+        3×3 matrix that best maps the camera's RGB of the 24 patches of the
+        standard colour chart to their linear sRGB under this light (least squares,
+        white kept at 1), as a camera's own JPEG engine does.
     step_nm : float
         Thickness step (nm) of the colour grid that pixels are interpolated on.
 
@@ -340,20 +385,24 @@ def render_photo(
         thickness_nm = read_thickness(thickness_nm)
     t = np.asarray(thickness_nm, dtype=np.float64)
     if t.ndim != 2 or t.size == 0:
-        raise OptionError(f"expected a 2-D field (H, W) in nm, got shape {t.shape}",
-                          where="thickness_nm")
+        raise OptionError(
+            f"expected a 2-D field (H, W) in nm, got shape {t.shape}", where="thickness_nm"
+        )
     if not isinstance(stack, Stack):
         raise OptionError(f"expected a Stack, got {type(stack).__name__}", where="stack")
     mask = np.isfinite(t) if film_mask is None else np.asarray(film_mask)
     if mask.shape != t.shape or mask.dtype != bool:
-        raise OptionError(f"expected a bool mask of shape {t.shape}, got {mask.dtype} "
-                          f"{mask.shape}", where="film_mask")
+        raise OptionError(
+            f"expected a bool mask of shape {t.shape}, got {mask.dtype} {mask.shape}",
+            where="film_mask",
+        )
     if not mask.any():
         raise OptionError("expected at least one film pixel, got none", where="film_mask")
     t_film = t[mask]
     if not np.all(np.isfinite(t_film)) or t_film.min() < 0:
-        raise OptionError("expected finite thicknesses >= 0 nm on the film, got NaN or < 0",
-                          where="thickness_nm")
+        raise OptionError(
+            "expected finite thicknesses >= 0 nm on the film, got NaN or < 0", where="thickness_nm"
+        )
     if output not in OUTPUTS:
         raise OptionError(f"expected one of {', '.join(OUTPUTS)}, got {output!r}", where="output")
     if jpeg_quality is not None:
@@ -362,8 +411,9 @@ def render_photo(
         jpeg_quality = int(_num(jpeg_quality, "jpeg_quality", 1, 100))
     wb = np.asarray(white_balance_error, dtype=np.float64)
     if wb.shape != (3,) or not np.all(np.isfinite(wb)) or np.any(wb <= 0):
-        raise OptionError(f"expected three numbers > 0, got {white_balance_error!r}",
-                          where="white_balance_error")
+        raise OptionError(
+            f"expected three numbers > 0, got {white_balance_error!r}", where="white_balance_error"
+        )
     bg = _num(background_reflectance, "background_reflectance", 0, 1)
     vig = _num(vignetting, "vignetting", 0, 1, hi_open=True)
     lamp = _num(lamp_gradient, "lamp_gradient", 0, 1.9)
@@ -375,10 +425,17 @@ def render_photo(
     detector = parse_detector(sensor, where="sensor")
     renderer = Renderer(light, detector)
 
-    colours, grid_range = _film_colours(t_film, stack, renderer, angle_deg, numerical_aperture,
-                                        step)
+    colours, grid_range = _film_colours(
+        t_film, stack, renderer, angle_deg, numerical_aperture, step
+    )
     h, w = t.shape
     lin = np.full((h, w, 3), bg, dtype=np.float64)
+    if camera_to_srgb not in ("none", "chart"):
+        raise OptionError(
+            f"expected 'none' or 'chart', got {camera_to_srgb!r}", where="camera_to_srgb"
+        )
+    if camera_to_srgb == "chart" and detector.kind == "camera":
+        colours = colours @ _chart_matrix(renderer).T
     lin[mask] = colours
     lin *= wb
     lin *= _gain((h, w), vig, lamp)[..., None]
@@ -390,8 +447,7 @@ def render_photo(
     used = base * factor
     img = (lin * used).astype(np.float32)
     if blur > 0:
-        img = cv2.GaussianBlur(img, (0, 0), sigmaX=blur, sigmaY=blur,
-                               borderType=cv2.BORDER_REFLECT)
+        img = cv2.GaussianBlur(img, (0, 0), sigmaX=blur, sigmaY=blur, borderType=cv2.BORDER_REFLECT)
     rng = np.random.default_rng(seed)
     img = np.clip(img, 0, 1)
     if output != "linear":
@@ -402,8 +458,11 @@ def render_photo(
     if output == "srgb8":
         image = np.round(img * 255).astype(np.uint8)
         if jpeg_quality is not None:
-            ok, buf = cv2.imencode(".jpg", cv2.cvtColor(image, cv2.COLOR_RGB2BGR),
-                                   [cv2.IMWRITE_JPEG_QUALITY, jpeg_quality])
+            ok, buf = cv2.imencode(
+                ".jpg",
+                cv2.cvtColor(image, cv2.COLOR_RGB2BGR),
+                [cv2.IMWRITE_JPEG_QUALITY, jpeg_quality],
+            )
             if not ok:  # pragma: no cover - OpenCV always encodes uint8 RGB
                 raise OutputError("JPEG encoding failed", where="jpeg_quality")
             jpeg = buf.tobytes()
@@ -415,27 +474,66 @@ def render_photo(
 
     camera = detector.kind == "camera"
     settings = {
-        "fringemap_version": __version__, "shape_px": [h, w], "stack": stack.describe(),
+        "fringemap_version": __version__,
+        "shape_px": [h, w],
+        "stack": stack.describe(),
         "light": {"name": light.name, "description": light.description},
         "sensor": {"name": detector.name, "kind": detector.kind},
         "colour_space": renderer.space,
-        "encoding": ("sRGB transfer on white-balanced camera RGB taken as sRGB primaries "
-                     "(uncalibrated camera)" if camera else
-                     "sRGB transfer on white-balanced linear sRGB"),
-        "angle_deg": float(angle_deg), "numerical_aperture": float(numerical_aperture),
+        "encoding": (
+            "sRGB transfer on white-balanced camera RGB taken as sRGB primaries "
+            "(uncalibrated camera)"
+            if camera
+            else "sRGB transfer on white-balanced linear sRGB"
+        ),
+        "angle_deg": float(angle_deg),
+        "numerical_aperture": float(numerical_aperture),
         "film_pixels": int(mask.sum()),
         "film_thickness_nm": [float(t_film.min()), float(t_film.max())],
         "colour_grid_nm": {"range": list(grid_range), "step": step},
-        "background_reflectance": bg, "exposure_mode": "auto" if exposure == "auto" else "fixed",
-        "exposure_factor": factor, "exposure": used, "vignetting": vig, "lamp_gradient": lamp,
-        "blur_px": blur, "noise": sigma_noise,
+        "background_reflectance": bg,
+        "exposure_mode": "auto" if exposure == "auto" else "fixed",
+        "exposure_factor": factor,
+        "exposure": used,
+        "vignetting": vig,
+        "lamp_gradient": lamp,
+        "blur_px": blur,
+        "noise": sigma_noise,
         "noise_domain": "linear" if output == "linear" else "encoded",
-        "jpeg_quality": jpeg_quality, "white_balance_error": [float(v) for v in wb],
-        "seed": int(seed), "output": output,
+        "jpeg_quality": jpeg_quality,
+        "white_balance_error": [float(v) for v in wb],
+        "seed": int(seed),
+        "output": output,
     }
     truth = np.where(mask, t, np.nan)
-    return SimulatedPhoto(image=image, thickness_nm=truth, film_mask=mask.copy(), exposure=used,
-                          settings=settings, jpeg_bytes=jpeg)
+    return SimulatedPhoto(
+        image=image,
+        thickness_nm=truth,
+        film_mask=mask.copy(),
+        exposure=used,
+        settings=settings,
+        jpeg_bytes=jpeg,
+    )
+
+
+def _chart_matrix(renderer: Renderer) -> np.ndarray:
+    """3×3 camera RGB → linear sRGB fitted on the 24-patch chart, white row-normalised."""
+    import colour
+
+    from .colour.spectra import GRID_NM
+
+    sds = colour.SDS_COLOURCHECKERS["BabelColor Average"]
+    refl = np.stack(
+        [
+            np.interp(GRID_NM, np.asarray(sd.wavelengths), np.asarray(sd.values))
+            for sd in sds.values()
+        ]
+    )
+    cam = renderer.rgb(refl)
+    srgb = renderer.srgb_linear(refl)
+    m, *_ = np.linalg.lstsq(cam, srgb, rcond=None)
+    m = m.T
+    return m / m.sum(axis=1, keepdims=True)  # camera white (1, 1, 1) stays sRGB white
 
 
 # ------------------------------------------------------------------------ writing
@@ -481,8 +579,11 @@ def write_simulated(sim: SimulatedPhoto, folder, stem: str, *, fmt: str = "png")
     img = sim.image
     if fmt == "png" or fmt == "jpg":
         if img.dtype == np.float32 or (fmt == "jpg" and img.dtype != np.uint8):
-            raise OptionError(f"{fmt} needs an 8-bit{'' if fmt == 'jpg' else ' or 16-bit'} "
-                              f"image, got {img.dtype}", where="fmt")
+            raise OptionError(
+                f"{fmt} needs an 8-bit{'' if fmt == 'jpg' else ' or 16-bit'} "
+                f"image, got {img.dtype}",
+                where="fmt",
+            )
         if fmt == "jpg" and sim.jpeg_bytes is not None:
             data = sim.jpeg_bytes
         else:
@@ -497,10 +598,13 @@ def write_simulated(sim: SimulatedPhoto, folder, stem: str, *, fmt: str = "png")
         raise OptionError(f"expected fmt 'png', 'jpg' or 'tif', got {fmt!r}", where="fmt")
     out = {"image": _write(folder / f"{stem}.{fmt}", data)}
     desc = json.dumps({"quantity": "film thickness", "unit": "nm", "off_film": "NaN"})
-    out["truth"] = _write(folder / f"{stem}.truth.tif",
-                          _tiff_bytes(sim.thickness_nm.astype(np.float32), description=desc))
-    out["settings"] = _write(folder / f"{stem}.json",
-                             (json.dumps(sim.settings, indent=2) + "\n").encode())
+    out["truth"] = _write(
+        folder / f"{stem}.truth.tif",
+        _tiff_bytes(sim.thickness_nm.astype(np.float32), description=desc),
+    )
+    out["settings"] = _write(
+        folder / f"{stem}.json", (json.dumps(sim.settings, indent=2) + "\n").encode()
+    )
     return out
 
 
@@ -519,8 +623,16 @@ def soap_frame(*, seed: int = 0):
     shape = (1000, 900)
     t = _lattice(draining_film(shape, top_nm=90, bottom_nm=1100, black_fraction=0.16))
     stack = Stack.from_names(film="db:main/H2O/Hale", substrate="air")
-    sim = render_photo(t, stack=stack, light="LED-B1", film_mask=frame_mask(shape, margin_px=50),
-                       vignetting=0.25, lamp_gradient=0.12, seed=seed, **_DEMO)
+    sim = render_photo(
+        t,
+        stack=stack,
+        light="LED-B1",
+        film_mask=frame_mask(shape, margin_px=50),
+        vignetting=0.25,
+        lamp_gradient=0.12,
+        seed=seed,
+        **_DEMO,
+    )
     recipe = {
         "stack": {"film": "soap", "substrate": "air"},
         "light": {"source": "LED-B1"},
@@ -529,10 +641,12 @@ def soap_frame(*, seed: int = 0):
         "measure": {"roi": "rect:50,50,850,950", "anchors": ["450,100=25"]},
         "report": {"profiles": ["450,60:450,940"]},
     }
-    note = ("Soap film draining in a wire frame under a warm-white LED (CIE LED-B1), black "
-            "background: 25 nm black film across the top, then 90 -> 1100 nm downwards; rendered "
-            "with pure-water data (db:main/H2O/Hale), about 0.005 below the recipe's built-in "
-            "soap index, so expect thicknesses ~0.4 % low.")
+    note = (
+        "Soap film draining in a wire frame under a warm-white LED (CIE LED-B1), black "
+        "background: 25 nm black film across the top, then 90 -> 1100 nm downwards; rendered "
+        "with pure-water data (db:main/H2O/Hale), about 0.005 below the recipe's built-in "
+        "soap index, so expect thicknesses ~0.4 % low."
+    )
     return sim, recipe, note
 
 
@@ -541,9 +655,17 @@ def oxide_wafer(*, seed: int = 0):
     shape = (1000, 1000)
     t = _lattice(bowl(shape, centre_nm=480, edge_nm=540, radius_px=470))
     stack = Stack.from_names(film="db:main/SiO2/Franta", substrate="db:main/Si/Aspnes")
-    sim = render_photo(t, stack=stack, light="F11", sensor="camera-a",
-                       film_mask=disc_mask(shape, radius=470), vignetting=0.3,
-                       lamp_gradient=0.08, seed=seed, **_DEMO)
+    sim = render_photo(
+        t,
+        stack=stack,
+        light="F11",
+        sensor="camera-a",
+        film_mask=disc_mask(shape, radius=470),
+        vignetting=0.3,
+        lamp_gradient=0.08,
+        seed=seed,
+        **_DEMO,
+    )
     recipe = {
         "stack": {"film": "sio2", "substrate": "si"},
         "light": {"source": "F11"},
@@ -552,10 +674,12 @@ def oxide_wafer(*, seed: int = 0):
         "measure": {"roi": "circle:499.5,499.5,470"},
         "report": {"scale_px_per_mm": 9.4, "edge_exclusion_mm": 3.0, "sites": 9},
     }
-    note = ("Thermal oxide on a 100 mm silicon wafer (disc on black) under tri-band fluorescent "
-            "F11, camera set A (uncalibrated: camera RGB encoded as sRGB), radial bowl 480 nm "
-            "centre -> 540 nm edge; rendered with SiO2 db:main/SiO2/Franta and Si "
-            "db:main/Si/Aspnes, the recipe uses the built-ins.")
+    note = (
+        "Thermal oxide on a 100 mm silicon wafer (disc on black) under tri-band fluorescent "
+        "F11, camera set A (uncalibrated: camera RGB encoded as sRGB), radial bowl 480 nm "
+        "centre -> 540 nm edge; rendered with SiO2 db:main/SiO2/Franta and Si "
+        "db:main/Si/Aspnes, the recipe uses the built-ins."
+    )
     return sim, recipe, note
 
 
@@ -569,11 +693,21 @@ def coated_slide(*, seed: int = 0):
     t = _lattice(scratch(t, start_xy=(150, 260), end_xy=(1050, 560), width_px=6))
     mask = np.zeros(shape, dtype=bool)
     mask[150:650] = True  # the slide crosses the frame; dark felt above and below
-    stack = Stack.from_names(film=_LACQUER, substrate="db:glass/soda-lime/Rubin-clear",
-                             substrate_thickness_nm=1e6)
-    sim = render_photo(t, stack=stack, light="D50", film_mask=mask, background_reflectance=0.005,
-                       vignetting=0.2, lamp_gradient=0.1, white_balance_error=(1.04, 1, 0.97),
-                       seed=seed, **_DEMO)
+    stack = Stack.from_names(
+        film=_LACQUER, substrate="db:glass/soda-lime/Rubin-clear", substrate_thickness_nm=1e6
+    )
+    sim = render_photo(
+        t,
+        stack=stack,
+        light="D50",
+        film_mask=mask,
+        background_reflectance=0.005,
+        vignetting=0.2,
+        lamp_gradient=0.1,
+        white_balance_error=(1.04, 1, 0.97),
+        seed=seed,
+        **_DEMO,
+    )
     recipe = {
         "stack": {"film": _LACQUER, "substrate": "crown-glass", "substrate_thickness_nm": 1e6},
         "light": {"source": "D50"},
@@ -582,10 +716,12 @@ def coated_slide(*, seed: int = 0):
         "measure": {"roi": "rect:0,160,1200,640"},
         "report": {"profiles": ["150,260:1050,560", "40,390:1160,390"]},
     }
-    note = ("Titania-silica sol-gel hard coat (Cauchy n ~ 1.80) on a 1 mm glass slide over dark "
-            "felt under D50: 350 nm with a 300 nm Gaussian bump and a scratch to bare glass; "
-            "rendered on soda-lime data (Rubin) while the recipe says crown glass, and with a "
-            "slight white-balance error (1.04, 1, 0.97).")
+    note = (
+        "Titania-silica sol-gel hard coat (Cauchy n ~ 1.80) on a 1 mm glass slide over dark "
+        "felt under D50: 350 nm with a 300 nm Gaussian bump and a scratch to bare glass; "
+        "rendered on soda-lime data (Rubin) while the recipe says crown glass, and with a "
+        "slight white-balance error (1.04, 1, 0.97)."
+    )
     return sim, recipe, note
 
 
@@ -617,7 +753,8 @@ def write_demo_images(folder, *, names=None) -> list[Path]:
             continue
         sim, recipe, note = make()
         paths += list(write_simulated(sim, folder, name, fmt="jpg").values())
-        paths.append(_write(folder / f"{name}.recipe.toml",
-                            Recipe.from_dict(recipe).to_toml().encode()))
+        paths.append(
+            _write(folder / f"{name}.recipe.toml", Recipe.from_dict(recipe).to_toml().encode())
+        )
         paths.append(_write(folder / f"{name}.txt", (note + "\n").encode()))
     return paths
