@@ -340,7 +340,18 @@ def measure(
         cc[valid_c] = cands.cost / noise
         _collapse_faded(ct, cc, t_faded)
         sel = select_orders(
-            ct, cc, valid=valid_c, tau_nm=tau, max_jump_nm=max_jump, anchors=anchors_c
+            ct,
+            cc,
+            valid=valid_c,
+            tau_nm=tau,
+            max_jump_nm=max_jump,
+            anchors=anchors_c,
+            colours=np.nan_to_num(q_c),
+            table_encoded=e_coarse,
+            t0_nm=t0,
+            step_nm=step * stride,
+            intensity_weight=lam,
+            noise=noise,
         )
         if i == len(passes) - 1:
             break

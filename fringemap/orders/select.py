@@ -34,6 +34,8 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
+from ..matching.space import _dist
+
 __all__ = ["OrderSelection", "select_orders"]
 
 
@@ -136,9 +138,49 @@ def _predict(p, h, w, state_t, assigned):
 
 
 @njit(cache=True)
-def _best_choice(p, pred, cand_t, cand_c, tau, max_jump):
+def _local_min(p, pred, q, e, ee, lam, t0, step, half, noise):
+    """Best thickness near ``pred`` on the table (window ±half entries): (t, normalised cost)."""
+    n = e.shape[0]
+    q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
+    qq = q0 * q0 + q1 * q1 + q2 * q2
+    mu = lam * qq
+    c = int(round((pred - t0) / step))
+    i0 = max(0, c - half)
+    i1 = min(n - 1, c + half)
+    if i1 < i0:
+        return np.nan, np.inf
     best = np.inf
-    bk = -1
+    bi = i0
+    for i in range(i0, i1 + 1):
+        d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+        if d < best:
+            best = d
+            bi = i
+    off = 0.0
+    if 0 < bi < n - 1:
+        dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
+        dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
+        den = dm - 2.0 * best + dp
+        if den > 0.0:
+            off = min(0.5, max(-0.5, 0.5 * (dm - dp) / den))
+            best = best - 0.25 * (dm - dp) * off
+    return t0 + (bi + off) * step, best / noise
+
+
+@njit(cache=True)
+def _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm):
+    """The cheapest continuation at pixel p: (thickness, cost, score); score inf if none.
+
+    Candidates are the pixel's precomputed local minima and, when the table is
+    given (``lm``), the best thickness in a window around the prediction — so the
+    growth can follow a branch whose minimum is shallow or shifted by a colour
+    mismatch, instead of jumping to another order.
+    """
+    best = np.inf
+    bt = np.nan
+    bc = np.inf
+    if not np.isfinite(pred):
+        return bt, bc, best
     for k in range(cand_t.shape[1]):
         t = cand_t[p, k]
         if not np.isfinite(t):
@@ -146,82 +188,69 @@ def _best_choice(p, pred, cand_t, cand_c, tau, max_jump):
         jump = abs(t - pred)
         if jump > max_jump:
             continue
-        s = cand_c[p, k] + (jump / tau) ** 2
-        if s < best:
-            best = s
-            bk = k
-    return bk, best
+        sc = cand_c[p, k] + (jump / tau) ** 2
+        if sc < best:
+            best = sc
+            bt = t
+            bc = cand_c[p, k]
+    q, e, ee, lam, t0, step, half, noise, use = lm
+    if use:
+        t, c = _local_min(p, pred, q, e, ee, lam, t0, step, half, noise)
+        if np.isfinite(t):
+            jump = abs(t - pred)
+            if jump <= max_jump:
+                sc = c + (jump / tau) ** 2
+                if sc < best:
+                    best = sc
+                    bt = t
+                    bc = c
+    return bt, bc, best
 
 
 @njit(cache=True)
-def _grow(seed, seed_k, allowed, cand_t, cand_c, h, w, tau, max_jump, out_k, out_t, assigned):
-    """Grow from (seed, seed_k) over pixels with allowed[p]; returns pixels assigned, cost sum."""
+def _grow(
+    seed_p, seed_t, seed_c, allowed, cand_t, cand_c, h, w, tau, max_jump, lm, out_t, out_c, assigned
+):
+    """Grow from a seed over pixels with allowed[p]; returns pixels assigned, cost sum."""
     n = h * w
     keys = np.empty(4 * n + 4)
     vals = np.empty(4 * n + 4, dtype=np.int64)
     size = 0
-    out_k[seed] = seed_k
-    out_t[seed] = cand_t[seed, seed_k]
-    assigned[seed] = True
+    out_t[seed_p] = seed_t
+    out_c[seed_p] = seed_c
+    assigned[seed_p] = True
     count = 1
-    cost_sum = cand_c[seed, seed_k]
-    queued = np.zeros(n, dtype=np.bool_)
+    cost_sum = seed_c
     size = _push_neighbours(
-        seed,
-        h,
-        w,
-        allowed,
-        assigned,
-        queued,
-        keys,
-        vals,
-        size,
-        cand_t,
-        cand_c,
-        out_t,
-        tau,
-        max_jump,
+        seed_p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
     )
     while size > 0:
         key, p, size = _heap_pop(keys, vals, size)
         if assigned[p]:
             continue
         pred = _predict(p, h, w, out_t, assigned)
-        k, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump)
-        if k < 0:
-            queued[p] = False  # may be reached again from another side
-            continue
+        t, c, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm)
+        if not np.isfinite(score):
+            continue  # may be reached again from another side
         if score > key + 1e-12:
             # priority went stale (more neighbours assigned since): requeue
-            size = _heap_push(keys, vals, size, score, p)
+            if size < keys.shape[0]:
+                size = _heap_push(keys, vals, size, score, p)
             continue
-        out_k[p] = k
-        out_t[p] = cand_t[p, k]
+        out_t[p] = t
+        out_c[p] = c
         assigned[p] = True
         count += 1
-        cost_sum += cand_c[p, k]
+        cost_sum += c
         size = _push_neighbours(
-            p,
-            h,
-            w,
-            allowed,
-            assigned,
-            queued,
-            keys,
-            vals,
-            size,
-            cand_t,
-            cand_c,
-            out_t,
-            tau,
-            max_jump,
+            p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
         )
     return count, cost_sum
 
 
 @njit(cache=True)
 def _push_neighbours(
-    p, h, w, allowed, assigned, queued, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump
+    p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
 ):
     y, x = p // w, p % w
     for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
@@ -232,31 +261,38 @@ def _push_neighbours(
         if assigned[q] or not allowed[q]:
             continue
         pred = _predict(q, h, w, out_t, assigned)
-        k, score = _best_choice(q, pred, cand_t, cand_c, tau, max_jump)
-        if k < 0:
+        t, c, score = _best_choice(q, pred, cand_t, cand_c, tau, max_jump, lm)
+        if not np.isfinite(score) or size >= keys.shape[0]:
             continue
-        if size >= keys.shape[0]:
-            continue
-        queued[q] = True
         size = _heap_push(keys, vals, size, score, q)
     return size
 
 
 @njit(cache=True)
 def _select_all(
-    cand_t, cand_c, valid, order, h, w, tau, max_jump, min_region, anchor_pix, anchor_t, miss_cost
+    cand_t,
+    cand_c,
+    valid,
+    order,
+    h,
+    w,
+    tau,
+    max_jump,
+    min_region,
+    anchor_pix,
+    anchor_t,
+    miss_cost,
+    lm,
 ):
     n = h * w
     kk = cand_t.shape[1]
-    out_k = np.full(n, -1, dtype=np.int64)
     out_t = np.full(n, np.nan)
+    out_c = np.full(n, np.inf)
     assigned = np.zeros(n, dtype=np.bool_)
     region = np.full(n, -1, dtype=np.int32)
-    n_reg_max = n
-    margins = np.zeros(n_reg_max)
-    sizes = np.zeros(n_reg_max, dtype=np.int64)
-    anchored = np.zeros(n_reg_max, dtype=np.bool_)
-    seeds = np.zeros(n_reg_max, dtype=np.int64)
+    margins = np.zeros(n)
+    sizes = np.zeros(n, dtype=np.int64)
+    anchored = np.zeros(n, dtype=np.bool_)
     r = 0
     # anchors seed first, with the candidate nearest to the known thickness
     seed_list = np.concatenate((anchor_pix, order))
@@ -273,51 +309,79 @@ def _select_all(
                     best = abs(cand_t[s, k] - anchor_t[idx])
                     sk = k
         before = assigned.copy()
-        _grow(s, sk, valid & ~before, cand_t, cand_c, h, w, tau, max_jump, out_k, out_t, assigned)
+        _grow(
+            s,
+            cand_t[s, sk],
+            cand_c[s, sk],
+            valid & ~before,
+            cand_t,
+            cand_c,
+            h,
+            w,
+            tau,
+            max_jump,
+            lm,
+            out_t,
+            out_c,
+            assigned,
+        )
         members = assigned & ~before
         for p in range(n):
             if members[p]:
                 region[p] = r
         sizes[r] = members.sum()
-        seeds[r] = s
         anchored[r] = is_anchor
         # order hypotheses: regrow the region from the seed's other candidates
         if not is_anchor and sizes[r] >= min_region:
             base_cost = 0.0
             for p in range(n):
                 if members[p]:
-                    base_cost += cand_c[p, out_k[p]]
+                    base_cost += out_c[p]
             best_cost = base_cost
             second = np.inf
-            best_k_alt = -1
-            best_alt_k = np.empty(0, dtype=np.int64)
+            best_t = np.empty(0)
+            best_c = np.empty(0)
             for k in range(kk):
                 if k == sk or not np.isfinite(cand_t[s, k]):
                     continue
-                hk = np.full(n, -1, dtype=np.int64)
                 ht = np.full(n, np.nan)
+                hc = np.full(n, np.inf)
                 ha = ~members
-                cnt, csum = _grow(s, k, members, cand_t, cand_c, h, w, tau, max_jump, hk, ht, ha)
+                cnt, csum = _grow(
+                    s,
+                    cand_t[s, k],
+                    cand_c[s, k],
+                    members,
+                    cand_t,
+                    cand_c,
+                    h,
+                    w,
+                    tau,
+                    max_jump,
+                    lm,
+                    ht,
+                    hc,
+                    ha,
+                )
                 total = csum + (sizes[r] - cnt) * miss_cost
                 if total < best_cost:
                     second = best_cost
                     best_cost = total
-                    best_k_alt = k
-                    best_alt_k = hk
+                    best_t = ht
+                    best_c = hc
                 elif total < second:
                     second = total
-            if best_k_alt >= 0:
-                # adopt the better hypothesis; pixels it could not reach keep their best candidate
+            if best_t.shape[0]:
+                # adopt the better hypothesis; pixels it could not reach keep their value
                 for p in range(n):
-                    if members[p]:
-                        if best_alt_k[p] >= 0:
-                            out_k[p] = best_alt_k[p]
-                            out_t[p] = cand_t[p, best_alt_k[p]]
+                    if members[p] and np.isfinite(best_t[p]):
+                        out_t[p] = best_t[p]
+                        out_c[p] = best_c[p]
             margins[r] = (second - best_cost) / sizes[r] if np.isfinite(second) else 1e9
         else:
             margins[r] = 1e9 if is_anchor else 0.0
         r += 1
-    return out_k, out_t, region, margins[:r], sizes[:r], anchored[:r]
+    return out_t, out_c, region, margins[:r], sizes[:r], anchored[:r]
 
 
 def select_orders(
@@ -329,6 +393,12 @@ def select_orders(
     max_jump_nm: float,
     min_region_px: int = 12,
     anchors: tuple[tuple[int, int, float], ...] = (),
+    colours: np.ndarray | None = None,
+    table_encoded: np.ndarray | None = None,
+    t0_nm: float = 0.0,
+    step_nm: float = 1.0,
+    intensity_weight: float = 0.0,
+    noise: float = 1.0,
 ) -> OrderSelection:
     """Choose one candidate per pixel by quality-guided region growing.
 
@@ -347,6 +417,11 @@ def select_orders(
         Regions smaller than this are not tested for their absolute order.
     anchors : tuple of (x, y, thickness_nm)
         Points of known thickness, in this grid's pixel coordinates.
+    colours, table_encoded : ndarray (H, W, 3) and (N, 3), optional
+        Encoded pixel colours and colour table (on the grid ``t0_nm``,
+        ``step_nm``). When given, growth also considers the best thickness
+        within a quarter order of each pixel's prediction (distance with
+        ``intensity_weight``, cost divided by ``noise``).
     """
     h, w, k = cand_t.shape
     ct = np.ascontiguousarray(cand_t.reshape(h * w, k), dtype=np.float64)
@@ -362,7 +437,23 @@ def select_orders(
     at = np.array([t for _, _, t in anchors], dtype=np.float64)
     good = cc[v, 0]
     miss = float(np.percentile(good, 90)) * 4 + 4.0 if good.size else 10.0
-    out_k, out_t, region, margins, sizes, anchored = _select_all(
+    if colours is not None and table_encoded is not None:
+        e = np.ascontiguousarray(table_encoded, dtype=np.float64)
+        lm = (
+            np.ascontiguousarray(colours.reshape(h * w, 3), dtype=np.float64),
+            e,
+            np.sum(e * e, axis=1),
+            float(intensity_weight),
+            float(t0_nm),
+            float(step_nm),
+            max(1, int(np.ceil(0.5 * max_jump_nm / step_nm))),
+            float(noise),
+            True,
+        )
+    else:
+        e = np.zeros((1, 3))
+        lm = (np.zeros((h * w, 3)), e, np.zeros(1), 0.0, 0.0, 1.0, 1, 1.0, False)
+    out_t, out_c, region, margins, sizes, anchored = _select_all(
         ct,
         cc,
         v,
@@ -375,10 +466,9 @@ def select_orders(
         apix,
         at,
         miss,
+        lm,
     )
-    cost = np.full(h * w, np.nan)
-    ok = out_k >= 0
-    cost[ok] = cc[ok, out_k[ok]]
+    cost = np.where(np.isfinite(out_t), out_c, np.nan)
     return OrderSelection(
         thickness_nm=out_t.reshape(h, w),
         cost=cost.reshape(h, w),
