@@ -49,6 +49,8 @@ FADED_CHROMA = 2.0
 COARSE_SIDE = 256
 #: candidates per pixel
 K = 6
+#: Rec. 709 / sRGB luminance weights
+_Y709 = np.array([0.2126, 0.7152, 0.0722])
 
 
 class MeasureSettings:
@@ -283,8 +285,10 @@ def measure(
             provenance={"software": f"fringemap {__version__}", "colour_table": table.key},
             warnings=("no film found: no pixel in the region of interest has a usable colour",),
         )
-    g0 = float(np.percentile((lin_c @ np.array([0.2126, 0.7152, 0.0722]))[valid_c], 99))
+    g0 = float(np.percentile((lin_c @ _Y709)[valid_c], 99))
     g0 = g0 / float(np.percentile(y_tab, 99))
+    rgb_c = table.rgb[::stride]
+    e_chroma = encode(rgb_c * (0.4 / np.maximum(rgb_c @ _Y709, 0.01))[:, None])
     gain = None
     passes = (
         INTENSITY_WEIGHT_CHROMA,
@@ -324,10 +328,17 @@ def measure(
         )
         if gain_c.shape != (hc, wc):
             gain_c = gain.evaluate((hc, wc)).astype(np.float64)
-        q_c = encode(lin_c / gain_c[..., None])
+        if i == 0:
+            # first pass: every colour scaled to one luminance, so the unknown exposure
+            # cannot matter (chromaticity only); the gain field is learnt from its result
+            q_c = encode(lin_c * (0.4 / np.maximum(lin_c @ _Y709, 1e-4))[..., None])
+            e_pass = e_chroma
+        else:
+            q_c = encode(lin_c / gain_c[..., None])
+            e_pass = e_coarse
         cands = find_candidates(
             q_c[valid_c],
-            e_coarse,
+            e_pass,
             t0_nm=t0,
             step_nm=step * stride,
             k=MeasureSettings.k,
@@ -347,12 +358,14 @@ def measure(
             max_jump_nm=max_jump,
             anchors=anchors_c,
             colours=np.nan_to_num(q_c),
-            table_encoded=e_coarse,
+            table_encoded=e_pass,
             t0_nm=t0,
             step_nm=step * stride,
             intensity_weight=lam,
             noise=noise,
         )
+        if i == 0:
+            sel_chroma = sel
         if i == len(passes) - 1:
             break
         samples, cc_model = _gain_samples(lin_c, sel.thickness_nm, table)
@@ -463,14 +476,24 @@ def measure(
     stats = uniformity(thick_out, mask=roi_mask)
     if stats.coverage < 0.01:
         warnings.append("no film found: coverage is below 1 % of the region of interest")
+    # how sure chromaticity alone is of the main area's order (exposure cannot help a
+    # uniform film): the largest chroma-pass region's margin
+    chroma_margin = (
+        float(sel_chroma.region_margin[np.argmax(sel_chroma.region_size)])
+        if sel_chroma.region_size.size
+        else 0.0
+    )
     big_regions = np.argsort(-sel.region_size)[:3]
     for r in big_regions:
         share = sel.region_size[r] / max(1, int(valid_c.sum()))
-        if share > 0.1 and not sel.region_anchored[r] and sel.region_margin[r] < 1.0:
+        margin_r = float(sel.region_margin[r])
+        if r == big_regions[0]:
+            margin_r = min(margin_r, chroma_margin)
+        if share > 0.1 and not sel.region_anchored[r] and margin_r < 1.0:
             warnings.append(
                 f"the fringe order of a film area covering {100 * share:.0f} % of the photo is "
-                f"uncertain (order margin {sel.region_margin[r]:.2f}): the next order fits "
-                "almost as well; give an --anchor X,Y=NM of known thickness"
+                f"uncertain (order margin {margin_r:.2f}): another order fits almost as well; "
+                "give an --anchor X,Y=NM of known thickness"
             )
     provenance = {
         "software": f"fringemap {__version__}",
@@ -498,6 +521,7 @@ def measure(
             }
             for r in big_regions
         ],
+        "chromaticity_order_margin": min(chroma_margin, 1e6),
         "anchors": [list(a) for a in anchors],
         "seconds": round(time.perf_counter() - t_start, 3),
     }

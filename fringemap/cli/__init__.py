@@ -19,7 +19,11 @@ __all__ = ["main", "build_parser", "COMMAND_MODULES"]
 #: command modules, in help order; each has register(subparsers, common)
 COMMAND_MODULES = [
     "fringemap.cli.map",
+    "fringemap.cli.batch",
+    "fringemap.cli.series",
     "fringemap.cli.chart",
+    "fringemap.cli.calibrate",
+    "fringemap.cli.fringes",
     "fringemap.cli.simulate",
 ]
 
@@ -41,6 +45,32 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _one_line_warnings() -> None:
+    """Show each fringemap warning once, on one line, without file and line numbers.
+
+    Warnings a command also reports in its results (per photo) are printed there
+    with the photo's name; the same text is not repeated here.
+    """
+    import warnings
+
+    from ..errors import FringemapWarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        text = str(message)
+        if issubclass(category, FringemapWarning):
+            if text not in SHOWN_WARNINGS:
+                SHOWN_WARNINGS.add(text)
+                print(f"fringemap: warning: {text}", file=sys.stderr)
+        else:  # a library's warning: one line too
+            print(f"fringemap: warning ({category.__name__}): {text}", file=sys.stderr)
+
+    warnings.showwarning = show
+
+
+#: texts of warnings already shown (commands skip these when listing per-photo warnings)
+SHOWN_WARNINGS: set[str] = set()
+
+
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``fringemap`` command; returns the exit code."""
     parser = build_parser()
@@ -49,6 +79,8 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     debug = getattr(args, "debug", False)
+    if not debug:
+        _one_line_warnings()
     try:
         return int(args.func(args) or 0)
     except FringemapError as exc:

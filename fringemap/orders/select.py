@@ -363,6 +363,13 @@ def _select_all(
                     hc,
                     ha,
                 )
+                # a hypothesis that merges back into the chosen labelling is no alternative
+                differ = 0
+                for p in range(n):
+                    if members[p] and np.isfinite(ht[p]) and abs(ht[p] - out_t[p]) > 0.6 * max_jump:
+                        differ += 1
+                if differ < 0.5 * sizes[r]:
+                    continue
                 total = csum + (sizes[r] - cnt) * miss_cost
                 if total < best_cost:
                     second = best_cost
