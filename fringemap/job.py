@@ -82,15 +82,30 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
     from .io import read_photo
     from .measure import measure
     from .report.outputs import write_map_outputs
+    from .report.settings import check_report_settings
 
     start = time.perf_counter()
     try:
         photo = read_photo(path)
+        settings = check_report_settings(job.recipe, photo.shape)
         if camera is None:
             camera = load_camera_for(job.recipe)
-        result = measure(photo, job.recipe, table=table, camera=camera)
+        if camera is not None:  # "self" -> self-calibrate; a model -> check its light
+            from dataclasses import replace
+
+            from .calibration import camera_for_photo
+
+            prepared = camera_for_photo(camera, photo, job.recipe, table=table)
+            result = measure(photo, job.recipe, table=table, camera=prepared.model)
+            result = replace(
+                result,
+                warnings=tuple(result.warnings) + prepared.warnings,
+                provenance={**result.provenance, "camera": prepared.provenance},
+            )
+        else:
+            result = measure(photo, job.recipe, table=table, camera=camera)
         written = write_map_outputs(result, job.out_dir, stem)
-        if job.report:
+        if job.report or settings.write_report:
             from .report.inspection import write_report
 
             written.update(write_report(result, photo, job.out_dir, stem))

@@ -132,6 +132,17 @@ def _opt_num(check):
     return f
 
 
+def _report_check(name):
+    """A validator from :mod:`fringemap.report.settings`, imported when first used."""
+
+    def check(v, key):
+        from .report import settings
+
+        return getattr(settings, name)(v, key)
+
+    return check
+
+
 # section -> key -> (validator, default)
 SCHEMA: dict[str, dict[str, tuple[Any, Any]]] = {
     "stack": {
@@ -160,11 +171,14 @@ SCHEMA: dict[str, dict[str, tuple[Any, Any]]] = {
         "thicker_at": (_str_list, ()),
     },
     "report": {
-        "spec": (_str, ""),
+        "spec": (_report_check("check_spec"), ""),
         "scale_px_per_mm": (_opt_num(_num(0, lo_open=True)), None),
+        "scale_points": (_report_check("check_scale_points"), ""),
         "edge_exclusion_mm": (_num(0), 0.0),
-        "sites": (_opt_num(_num(1, 49)), None),
-        "profiles": (_str_list, ()),
+        "sites": (_report_check("check_sites"), None),
+        "profiles": (_report_check("check_profiles"), ()),
+        "regions": (_report_check("check_regions"), ()),
+        "write_report": (_report_check("check_bool"), False),
     },
 }
 

@@ -67,8 +67,9 @@ def test_bump_peak_and_base():
 
 
 def test_scratch_depth_and_width():
-    t = scratch(uniform(500, (50, 100)), start_xy=(10, 25), end_xy=(90, 25), width_px=4,
-                depth_to_nm=20)
+    t = scratch(
+        uniform(500, (50, 100)), start_xy=(10, 25), end_xy=(90, 25), width_px=4, depth_to_nm=20
+    )
     assert t[25, 50] == 20 and t[23, 50] == 20 and t[27, 50] == 20
     assert t[22, 50] == 500 and t[28, 50] == 500
     assert t[25, 5] == 500 and t[25, 95] == 500  # beyond the segment's ends
@@ -107,10 +108,18 @@ def test_shape_errors_name_the_argument():
 def test_uniform_colour_matches_colour_table(oxide, sensor):
     t0 = 301.3
     wb = (1.1, 1.0, 0.9)
-    sim = render_photo(uniform(t0), stack=oxide, light="D65", sensor=sensor, noise=0.01,
-                       white_balance_error=wb, **QUIET)
-    table = build_colour_table(oxide, light="D65", detector=sensor, angle_deg=0,
-                               thickness_range_nm=(250, 350), step_nm=0.5)
+    sim = render_photo(
+        uniform(t0),
+        stack=oxide,
+        light="D65",
+        sensor=sensor,
+        noise=0.01,
+        white_balance_error=wb,
+        **QUIET,
+    )
+    table = build_colour_table(
+        oxide, light="D65", detector=sensor, angle_deg=0, thickness_range_nm=(250, 350), step_nm=0.5
+    )
     expected = table.colour_at(t0) * np.array(wb) * sim.exposure
     got = srgb_decode(sim.image.reshape(-1, 3) / 255.0).mean(axis=0)
     np.testing.assert_allclose(got, expected, atol=0.004)
@@ -119,32 +128,64 @@ def test_uniform_colour_matches_colour_table(oxide, sensor):
 
 
 def test_fixed_exposure_and_factor_linear(oxide):
-    sim = render_photo(uniform(120.0), stack=oxide, light="D50", exposure=2.0,
-                       exposure_factor=0.5, noise=0.0, output="linear", **QUIET)
-    table = build_colour_table(oxide, light="D50", detector="cie1931", angle_deg=0,
-                               thickness_range_nm=(100, 140), step_nm=0.5)
+    sim = render_photo(
+        uniform(120.0),
+        stack=oxide,
+        light="D50",
+        exposure=2.0,
+        exposure_factor=0.5,
+        noise=0.0,
+        output="linear",
+        **QUIET,
+    )
+    table = build_colour_table(
+        oxide,
+        light="D50",
+        detector="cie1931",
+        angle_deg=0,
+        thickness_range_nm=(100, 140),
+        step_nm=0.5,
+    )
     assert sim.exposure == 1.0 and sim.image.dtype == np.float32
-    np.testing.assert_allclose(sim.image[5, 5], np.clip(table.colour_at(120.0), 0, 1), rtol=1e-4,
-                               atol=1e-6)
+    np.testing.assert_allclose(
+        sim.image[5, 5], np.clip(table.colour_at(120.0), 0, 1), rtol=1e-4, atol=1e-6
+    )
 
 
 def test_vignetting_and_lamp_gradient(oxide):
     t = uniform(300.0, (101, 151))
-    sim = render_photo(t, stack=oxide, light="D65", vignetting=0.3, lamp_gradient=0.0,
-                       blur_px=0, noise=0, output="linear")
+    sim = render_photo(
+        t,
+        stack=oxide,
+        light="D65",
+        vignetting=0.3,
+        lamp_gradient=0.0,
+        blur_px=0,
+        noise=0,
+        output="linear",
+    )
     img = sim.image.mean(axis=2)
     for corner in (img[0, 0], img[0, -1], img[-1, 0], img[-1, -1]):
         assert corner / img[50, 75] == pytest.approx(0.7, rel=0.02)
-    sim = render_photo(t, stack=oxide, light="D65", vignetting=0.0, lamp_gradient=0.2,
-                       blur_px=0, noise=0, output="linear")
+    sim = render_photo(
+        t,
+        stack=oxide,
+        light="D65",
+        vignetting=0.0,
+        lamp_gradient=0.2,
+        blur_px=0,
+        noise=0,
+        output="linear",
+    )
     img = sim.image.mean(axis=2)
     assert img[50, 0] / img[50, -1] == pytest.approx(0.9 / 1.1, rel=1e-4)
 
 
 @pytest.mark.parametrize(("output", "scale"), [("srgb16", 65535.0), ("linear", 1.0)])
 def test_noise_std_as_asked(oxide, output, scale):
-    sim = render_photo(uniform(300.0, (128, 128)), stack=oxide, light="D65", noise=0.02,
-                       output=output, **QUIET)
+    sim = render_photo(
+        uniform(300.0, (128, 128)), stack=oxide, light="D65", noise=0.02, output=output, **QUIET
+    )
     std = (sim.image / scale).std(axis=(0, 1))
     np.testing.assert_allclose(std, 0.02, rtol=0.06)
 
@@ -163,8 +204,9 @@ def test_jpeg_round_trip_keeps_rgb_order(oxide, tmp_path):
     jpg = render_photo(uniform(240.0), noise=0, jpeg_quality=90, **kw)
     r, g, b = jpg.image.reshape(-1, 3).mean(axis=0)
     assert r > 2 * g and r > 2 * b
-    np.testing.assert_allclose(jpg.image.reshape(-1, 3).mean(axis=0),
-                               plain.image.reshape(-1, 3).mean(axis=0), atol=3)
+    np.testing.assert_allclose(
+        jpg.image.reshape(-1, 3).mean(axis=0), plain.image.reshape(-1, 3).mean(axis=0), atol=3
+    )
     paths = write_simulated(jpg, tmp_path, "red", fmt="jpg")
     back = cv2.cvtColor(cv2.imread(str(paths["image"])), cv2.COLOR_BGR2RGB)
     np.testing.assert_array_equal(back, jpg.image)
@@ -173,8 +215,14 @@ def test_jpeg_round_trip_keeps_rgb_order(oxide, tmp_path):
 def test_truth_nan_outside_mask_and_files(oxide, tmp_path):
     shape = (60, 60)
     mask = disc_mask(shape, radius=25)
-    sim = render_photo(bowl(shape, centre_nm=480, edge_nm=540), stack=oxide, light="F11",
-                       film_mask=mask, output="srgb16", seed=3)
+    sim = render_photo(
+        bowl(shape, centre_nm=480, edge_nm=540),
+        stack=oxide,
+        light="F11",
+        film_mask=mask,
+        output="srgb16",
+        seed=3,
+    )
     assert np.all(np.isnan(sim.thickness_nm[~mask])) and np.all(np.isfinite(sim.thickness_nm[mask]))
     assert sim.image.shape == (60, 60, 3)
     assert np.all(sim.image[0, 0] < 0.05 * 65535)  # black background, only noise

@@ -49,6 +49,12 @@ def add_stack_options(p: argparse.ArgumentParser) -> None:
         "wavelength_nm,r,g,b sensitivities",
     )
     g.add_argument(
+        "--camera",
+        metavar="FILE|self",
+        help="camera colour correction: a camera file from `fringemap calibrate`, or self to "
+        "calibrate from each photo itself (default: none)",
+    )
+    g.add_argument(
         "--range",
         metavar="MIN:MAX",
         dest="range_nm",
@@ -64,6 +70,7 @@ def add_stack_options(p: argparse.ArgumentParser) -> None:
 
 def recipe_from_args(args):
     from ..recipe import load_recipe
+    from .report_options import report_overrides
 
     recipe = load_recipe(args.recipe)
     return recipe.with_overrides(
@@ -76,10 +83,12 @@ def recipe_from_args(args):
             "light.angle_deg": args.angle,
             "light.aperture": args.aperture,
             "camera.sensor": args.sensor,
+            "camera.calibration": getattr(args, "camera", None),
             "search.range_nm": args.range_nm,
             "search.step_nm": args.step,
             **({"measure.roi": args.roi} if getattr(args, "roi", None) else {}),
             **({"measure.anchors": args.anchor} if getattr(args, "anchor", None) else {}),
+            **report_overrides(args),
         }
     )
 

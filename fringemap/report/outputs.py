@@ -83,12 +83,22 @@ def write_map_outputs(
 ) -> dict[str, Path]:
     """Write the five per-photo outputs (see the module docstring); all or nothing.
 
-    Returns the paths written, by kind.
+    The statistics file also holds the analysis of :mod:`fringemap.report.analysis`
+    (key ``"analysis"``); with sites or profiles in the recipe's ``[report]``,
+    ``<stem>.sites.csv``, ``<stem>.profiles.csv`` and ``<stem>.profiles.png`` are
+    written too. Returns the paths written, by kind.
     """
     from ..io.write import atomic_path, write_float_tiff, write_json, write_uint8_tiff
+    from .analysis import analyse, optional_output_paths
+    from .analysis_files import write_optional_outputs
     from .figures import draw_thickness_map
 
+    analysis = analyse(result, result.recipe)
+    if scale_px_per_mm is None and analysis.settings.scale is not None:
+        scale_px_per_mm = analysis.settings.scale.px_per_mm
+    extra_stats = {"analysis": analysis.to_dict(), **(extra_stats or {})}
     paths = output_paths(out_dir, stem)
+    paths.update(optional_output_paths(analysis.settings, out_dir, stem, include_report=False))
     with contextlib.ExitStack() as stack:
         tmp = {kind: stack.enter_context(atomic_path(p)) for kind, p in paths.items()}
         write_float_tiff(
@@ -117,4 +127,5 @@ def write_map_outputs(
             scale_px_per_mm=scale_px_per_mm,
         )
         write_json(tmp["stats"], stats_document(result, extra_stats))
+        write_optional_outputs(analysis, result, tmp)
     return paths
