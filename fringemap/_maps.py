@@ -30,8 +30,10 @@ def csv_cell(value: float) -> str:
 
 
 def as_map(thickness_nm: np.ndarray) -> np.ndarray:
-    """``thickness_nm`` as a float64 array of shape (H, W), or FringemapError."""
-    t = np.asarray(thickness_nm, dtype=np.float64)
+    """``thickness_nm`` as a float array of shape (H, W) (float32 kept: no copy), or error."""
+    t = np.asarray(thickness_nm)
+    if t.dtype not in (np.float32, np.float64):
+        t = t.astype(np.float64)
     if t.ndim != 2:
         raise FringemapError(f"expected a thickness map of shape (H, W), got shape {t.shape}")
     return t

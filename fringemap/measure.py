@@ -326,6 +326,20 @@ def measure(
         anchors_c = tuple(
             (min(wc - 1, int(x // fi)), min(hc - 1, int(y // fi)), t) for x, y, t in anchors
         )
+        if 0 < i < len(passes) - 1 and sel is not None and sel.region_size.size:
+            # passes that only refine the gain keep the main area's order from the pass
+            # before (a soft anchor at its seed): order hypotheses are tested in the first
+            # pass (chromaticity) and the last (full colour)
+            main = int(np.argmax(sel.region_size))
+            sy, sx = divmod(int(sel.region_seed[main]), sel.region.shape[1])
+            ratio = factors[i - 1] / fi
+            anchors_c = anchors_c + (
+                (
+                    min(wc - 1, int((sx + 0.5) * ratio)),
+                    min(hc - 1, int((sy + 0.5) * ratio)),
+                    float(sel.thickness_nm[sy, sx]),
+                ),
+            )
         if gain_c.shape != (hc, wc):
             gain_c = gain.evaluate((hc, wc)).astype(np.float64)
         if i == 0:

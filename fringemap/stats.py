@@ -204,8 +204,9 @@ def uniformity(
     region_px = int(np.count_nonzero(area))
     coverage = count / region_px if region_px else 0.0
     if count:
-        mean = float(values.mean())
-        std = float(np.sqrt(np.mean((values - mean) ** 2)))
+        mean = float(values.mean(dtype=np.float64))
+        dev = values - values.dtype.type(mean)
+        std = float(np.sqrt(np.einsum("i,i->", dev, dev, dtype=np.float64) / count))
         lo, hi = float(values.min()), float(values.max())
         p1, p5, p50, p95, p99 = (float(v) for v in np.percentile(values, [1, 5, 50, 95, 99]))
     else:

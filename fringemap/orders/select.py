@@ -58,6 +58,8 @@ class OrderSelection:
         Pixels per region.
     region_anchored : ndarray of bool (R,)
         Whether an anchor fixed the region's order.
+    region_seed : ndarray of int (R,)
+        Flat index of each region's seed pixel.
     """
 
     thickness_nm: np.ndarray
@@ -66,6 +68,7 @@ class OrderSelection:
     region_margin: np.ndarray
     region_size: np.ndarray
     region_anchored: np.ndarray
+    region_seed: np.ndarray
 
 
 # --- a small binary heap on parallel arrays (numba has no priority queue of tuples) ---
@@ -293,6 +296,7 @@ def _select_all(
     margins = np.zeros(n)
     sizes = np.zeros(n, dtype=np.int64)
     anchored = np.zeros(n, dtype=np.bool_)
+    seeds = np.zeros(n, dtype=np.int64)
     r = 0
     # anchors seed first, with the candidate nearest to the known thickness
     seed_list = np.concatenate((anchor_pix, order))
@@ -331,6 +335,7 @@ def _select_all(
                 region[p] = r
         sizes[r] = members.sum()
         anchored[r] = is_anchor
+        seeds[r] = s
         # order hypotheses: regrow the region from the seed's other candidates
         if not is_anchor and sizes[r] >= min_region:
             base_cost = 0.0
@@ -388,7 +393,7 @@ def _select_all(
         else:
             margins[r] = 1e9 if is_anchor else 0.0
         r += 1
-    return out_t, out_c, region, margins[:r], sizes[:r], anchored[:r]
+    return out_t, out_c, region, margins[:r], sizes[:r], anchored[:r], seeds[:r]
 
 
 def select_orders(
@@ -460,7 +465,7 @@ def select_orders(
     else:
         e = np.zeros((1, 3))
         lm = (np.zeros((h * w, 3)), e, np.zeros(1), 0.0, 0.0, 1.0, 1, 1.0, False)
-    out_t, out_c, region, margins, sizes, anchored = _select_all(
+    out_t, out_c, region, margins, sizes, anchored, seeds = _select_all(
         ct,
         cc,
         v,
@@ -483,4 +488,5 @@ def select_orders(
         region_margin=margins,
         region_size=sizes,
         region_anchored=anchored,
+        region_seed=seeds,
     )
