@@ -326,7 +326,12 @@ def measure(
         anchors_c = tuple(
             (min(wc - 1, int(x // fi)), min(hc - 1, int(y // fi)), t) for x, y, t in anchors
         )
-        if 0 < i < len(passes) - 1 and sel is not None and sel.region_size.size:
+        if (
+            0 < i < len(passes) - 1
+            and sel is not None
+            and sel.region_size.size
+            and sel.region_margin[int(np.argmax(sel.region_size))] > 50.0
+        ):
             # passes that only refine the gain keep the main area's order from the pass
             # before (a soft anchor at its seed): order hypotheses are tested in the first
             # pass (chromaticity) and the last (full colour)
