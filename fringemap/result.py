@@ -97,5 +97,4 @@ class ThicknessMap:
 
     def reason_counts(self) -> dict[str, int]:
         """Number of pixels per reason name."""
-        counts = np.bincount(self.reasons.ravel(), minlength=len(REASONS))
-        return {REASONS[i]: int(counts[i]) for i in REASONS}
+        return {name: int(np.count_nonzero(self.reasons == code)) for code, name in REASONS.items()}

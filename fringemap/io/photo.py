@@ -427,6 +427,9 @@ def _to_linear(rgb: np.ndarray, use_srgb: bool) -> np.ndarray:
     if rgb.dtype.kind == "u":
         full = int(np.iinfo(rgb.dtype).max)
         if use_srgb:
+            if rgb.dtype == np.uint8:
+                # OpenCV's table look-up: several times faster than fancy indexing
+                return cv2.LUT(np.ascontiguousarray(rgb), _srgb_lut(full))
             return _srgb_lut(full)[rgb]
         return rgb.astype(np.float32) / np.float32(full)
     values = rgb.astype(np.float32, copy=False)

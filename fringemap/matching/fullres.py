@@ -83,26 +83,16 @@ def block_mean(linear, usable, f):
     return mean, frac
 
 
+def _axis_weights(n_full: int, n_coarse: int, f: int):
+    """Bilinear interpolation indices and weights from a coarse axis to a full one."""
+    g = np.clip((np.arange(n_full) + 0.5) / f - 0.5, 0.0, n_coarse - 1.0)
+    i0 = np.floor(g).astype(np.int64)
+    i1 = np.minimum(i0 + 1, n_coarse - 1)
+    return i0, i1, g - i0
+
+
 @njit(cache=True, inline="always")
-def _bilinear(grid, y, x, f):
-    """Value of a coarse grid (block size f) at full-resolution pixel (y, x)."""
-    hc, wc = grid.shape
-    gy = (y + 0.5) / f - 0.5
-    gx = (x + 0.5) / f - 0.5
-    if gy < 0.0:
-        gy = 0.0
-    if gx < 0.0:
-        gx = 0.0
-    if gy > hc - 1:
-        gy = hc - 1.0
-    if gx > wc - 1:
-        gx = wc - 1.0
-    y0 = int(gy)
-    x0 = int(gx)
-    y1 = min(y0 + 1, hc - 1)
-    x1 = min(x0 + 1, wc - 1)
-    fy = gy - y0
-    fx = gx - x0
+def _interp(grid, y0, y1, fy, x0, x1, fx):
     return (
         grid[y0, x0] * (1 - fy) * (1 - fx)
         + grid[y0, x1] * (1 - fy) * fx
@@ -113,36 +103,23 @@ def _bilinear(grid, y, x, f):
 
 @njit(cache=True, parallel=True)
 def _fullres_kernel(
-    linear,
-    usable,
-    pred_c,
-    gain_c,
-    f,
-    e,
-    ee,
-    lut,
-    lam,
-    t0,
-    step,
-    half,
-    stride,
-    out_t,
-    out_c,
-    out_edge,
-    out_pred,
-):
+    linear, usable, pred_c, gain_c, ys0, ys1, fys, xs0, xs1, fxs, e, ee, lut, lam, t0, step,
+    half, stride, out_t, out_c, out_edge, out_pred,
+):  # fmt: skip
     h, w = usable.shape
     n = e.shape[0]
     for y in prange(h):
+        y0, y1, fy = ys0[y], ys1[y], fys[y]
         for x in range(w):
-            pred = _bilinear(pred_c, y, x, f)
+            x0, x1, fx = xs0[x], xs1[x], fxs[x]
+            pred = _interp(pred_c, y0, y1, fy, x0, x1, fx)
             out_pred[y, x] = pred
             if not usable[y, x]:
                 out_t[y, x] = np.nan
                 out_c[y, x] = np.inf
                 out_edge[y, x] = False
                 continue
-            g = _bilinear(gain_c, y, x, f)
+            g = _interp(gain_c, y0, y1, fy, x0, x1, fx)
             q0 = _enc(linear[y, x, 0] / g, lut)
             q1 = _enc(linear[y, x, 1] / g, lut)
             q2 = _enc(linear[y, x, 2] / g, lut)
@@ -226,12 +203,16 @@ def fullres_match(
     out_c = np.empty((h, w), dtype=np.float32)
     out_edge = np.empty((h, w), dtype=np.bool_)
     out_pred = np.empty((h, w), dtype=np.float32)
+    pred_c = np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64)
+    ys = _axis_weights(h, pred_c.shape[0], int(factor))
+    xs = _axis_weights(w, pred_c.shape[1], int(factor))
     _fullres_kernel(
         np.ascontiguousarray(linear, dtype=np.float32),
         np.ascontiguousarray(usable),
-        np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64),
+        pred_c,
         np.ascontiguousarray(gain_coarse, dtype=np.float64),
-        int(factor),
+        *ys,
+        *xs,
         e,
         ee,
         ENCODE_LUT,
