@@ -132,15 +132,10 @@ def _opt_num(check):
     return f
 
 
-def _report_check(name):
-    """A validator from :mod:`fringemap.report.settings`, imported when first used."""
-
-    def check(v, key):
-        from .report import settings
-
-        return getattr(settings, name)(v, key)
-
-    return check
+def _bool(v, key):
+    if not isinstance(v, bool):
+        raise OptionError(f"expected true or false, got {v!r}", where=key)
+    return v
 
 
 # section -> key -> (validator, default)
@@ -171,14 +166,16 @@ SCHEMA: dict[str, dict[str, tuple[Any, Any]]] = {
         "thicker_at": (_str_list, ()),
     },
     "report": {
-        "spec": (_report_check("check_spec"), ""),
+        # the report stage parses these texts (fringemap.report.settings); the recipe
+        # checks their types, so it needs to know nothing of the stages after it
+        "spec": (_str, ""),
         "scale_px_per_mm": (_opt_num(_num(0, lo_open=True)), None),
-        "scale_points": (_report_check("check_scale_points"), ""),
+        "scale_points": (_str, ""),
         "edge_exclusion_mm": (_num(0), 0.0),
-        "sites": (_report_check("check_sites"), None),
-        "profiles": (_report_check("check_profiles"), ()),
-        "regions": (_report_check("check_regions"), ()),
-        "write_report": (_report_check("check_bool"), False),
+        "sites": (_opt_num(_num(1, 49)), None),
+        "profiles": (_str_list, ()),
+        "regions": (_str_list, ()),
+        "write_report": (_bool, False),
     },
 }
 
@@ -192,6 +189,9 @@ class Recipe:
 
     values: dict = field(default_factory=dict)
     source: str | None = None
+    #: keys set by :meth:`with_overrides` (command-line options), so errors in values
+    #: from the recipe file name the file and key, and errors in options the option
+    overridden: frozenset = field(default=frozenset(), compare=False, repr=False)
 
     @classmethod
     def from_dict(cls, data: dict, *, source: str | None = None) -> Recipe:
@@ -215,7 +215,12 @@ class Recipe:
                         where=where,
                     )
                 check, _ = SCHEMA[section][key]
-                values[section][key] = check(v, f"{section}.{key}")
+                try:
+                    values[section][key] = check(v, f"{section}.{key}")
+                except OptionError as exc:
+                    if source and exc.where and not exc.where.startswith(source):
+                        exc.where = f"{source}: {exc.where}"  # the file and the key
+                    raise
         return cls(values=values, source=source)
 
     def get(self, section: str, key: str):
@@ -225,13 +230,22 @@ class Recipe:
     def with_overrides(self, overrides: dict[str, Any]) -> Recipe:
         """A new recipe with ``{"section.key": value}`` overrides (None = keep)."""
         data = {s: dict(v) for s, v in self.values.items()}
+        changed = set(self.overridden)
         for dotted, v in overrides.items():
             if v is None:
                 continue
             section, key = dotted.split(".")
             check, _ = SCHEMA[section][key]
             data[section][key] = check(v, dotted)
-        return replace(self, values=data)
+            changed.add(dotted)
+        return replace(self, values=data, overridden=frozenset(changed))
+
+    def label(self, dotted: str, option: str) -> str:
+        """Where an error in the value of ``dotted`` is: ``option`` when it was given
+        as an option (or there is no recipe file), else ``FILE: section.key``."""
+        if self.source and dotted not in self.overridden:
+            return f"{self.source}: {dotted}"
+        return option
 
     def require_stack(self) -> None:
         """Raise OptionError unless film and substrate are set."""
@@ -281,25 +295,36 @@ class Recipe:
 
         self.require_stack()
         s = self.values["stack"]
-        return Stack.from_names(
-            film=s["film"],
-            substrate=s["substrate"],
-            ambient=s["ambient"],
-            layers=s["layers"],
-            substrate_thickness_nm=s["substrate_thickness_nm"],
-        )
+        try:
+            return Stack.from_names(
+                film=s["film"],
+                substrate=s["substrate"],
+                ambient=s["ambient"],
+                layers=s["layers"],
+                substrate_thickness_nm=s["substrate_thickness_nm"],
+            )
+        except OptionError as exc:
+            keys = {f"--{k}": f"stack.{k}" for k in ("film", "substrate", "ambient")}
+            keys["stack.layers"] = "stack.layers"
+            if exc.where in keys:
+                dotted = keys[exc.where]
+                exc.where = self.label(dotted, "--layer" if dotted == "stack.layers" else exc.where)
+            raise
 
     def light(self):
         """The light (:class:`~fringemap.colour.spectra.Light`)."""
         from .colour.spectra import parse_light
 
-        return parse_light(self.values["light"]["source"], where="--light")
+        where = self.label("light.source", "--light")
+        return parse_light(self.values["light"]["source"], where=where)
 
     def detector(self):
         """The detector (:class:`~fringemap.colour.spectra.Detector`)."""
         from .colour.spectra import parse_detector
 
-        return parse_detector(self.values["camera"]["sensor"], where="--sensor")
+        return parse_detector(
+            self.values["camera"]["sensor"], where=self.label("camera.sensor", "--sensor")
+        )
 
     def colour_table(self):
         """The colour table for this recipe (see :func:`fringemap.colour.table.build_colour_table`)."""
@@ -321,12 +346,22 @@ def load_recipe(path: str | Path | None) -> Recipe:
     if path is None:
         return Recipe.from_dict({})
     p = Path(path)
+    if p.is_dir():
+        raise InputFileError("is a folder; give the path of a TOML recipe file", where=str(p))
     if not p.is_file():
-        raise InputFileError("recipe file not found", where=str(p))
+        raise InputFileError("recipe file not found; check the file name and folder", where=str(p))
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except UnicodeDecodeError:
-        raise InputFileError("recipe is not UTF-8 text", where=str(p)) from None
+    except UnicodeDecodeError as exc:
+        raise OptionError(
+            f"recipe is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at offset "
+            f"{exc.start}); save it as UTF-8",
+            where=str(p),
+        ) from None
+    except OSError as exc:
+        raise InputFileError(
+            f"recipe cannot be read ({exc.strerror or type(exc).__name__})", where=str(p)
+        ) from None
     except tomllib.TOMLDecodeError as exc:
         raise OptionError(f"not valid TOML: {exc}", where=str(p)) from None
     return Recipe.from_dict(data, source=str(p))
