@@ -145,6 +145,37 @@ def brute_force_seconds(n_pixels: int, sample: int = 20000) -> float:
     return per_px * n_pixels
 
 
+def colour_table_seconds(repeat: int) -> dict:
+    """Median seconds for the forward model: 3000 thicknesses × 400 wavelengths, with colour.
+
+    Reflectance of oxide on silicon by the transfer matrix over 380-780 nm at 400 samples,
+    then integrated against a light and the CIE observer (a matrix product), as the colour
+    table does; and the table itself as built by the pipeline (1 nm steps, its own grid).
+    """
+    from .colour.spectra import GRID_NM, parse_detector, parse_light
+    from .optics.stack import Stack, reflectance
+
+    stack = Stack.from_names(film="sio2", substrate="si")
+    t = np.linspace(0.0, 1500.0, 3000)
+    wl = np.linspace(380.0, 780.0, 400)
+    light = np.interp(wl, GRID_NM, parse_light("D65").power)
+    cmf = np.stack([np.interp(wl, GRID_NM, c) for c in parse_detector("cie1931").curves.T], -1)
+    weights = light[:, None] * cmf
+    weights /= weights[:, 1].sum()
+    model, table = [], []
+    for _ in range(repeat + 1):
+        t0 = time.perf_counter()
+        (reflectance(stack, thickness_nm=t, wavelength_nm=wl, angle_deg=0.0) @ weights).sum()
+        model.append(time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        _recipe().colour_table()
+        table.append(time.perf_counter() - t0)
+    return {
+        "forward model 3000 x 400 with colour": float(np.median(model[1:])),
+        "colour table as built (0-1500 nm, 1 nm)": float(np.median(table[1:])),
+    }
+
+
 def _child(path: str, repeat: int) -> None:
     """Run in a fresh process: stage timings and peak memory as JSON on stdout."""
     med = _stages(Path(path), repeat)
@@ -172,6 +203,11 @@ def main(argv: list[str] | None = None) -> int:
         f"machine: {os.cpu_count()} CPUs, python {sys.version.split()[0]}, numpy {np.__version__}"
     )
     results = {}
+    model = colour_table_seconds(args.repeat)
+    results["forward_model"] = model
+    print("\nforward model (medians):")
+    for k, v in model.items():
+        print(f"  {k:<48} {v:8.3f} s")
     for mp in sizes:
         path = make_photo(folder, mp)
         out = subprocess.run(
