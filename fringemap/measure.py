@@ -448,7 +448,10 @@ def measure(
         rows = np.arange(ys.size)
         t_alt = gc.thickness_nm[rows, best]
         c_alt = gc.cost[rows, best]
-        better = c_alt < cost[ys, xs]
+        # an order jump away from the coarse map must fit clearly better than the local
+        # match (a scratch does; a JPEG block or a speck of dust does not)
+        far = np.abs(t_alt - p[:, 0]) > 0.5 * period
+        better = c_alt < np.where(far, 0.5, 1.0) * cost[ys, xs]
         thick[ys[better], xs[better]] = t_alt[better]
         cost[ys[better], xs[better]] = c_alt[better]
 
