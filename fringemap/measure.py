@@ -452,6 +452,13 @@ def measure(
         # match (a scratch does; a JPEG block or a speck of dust does not)
         far = np.abs(t_alt - p[:, 0]) > 0.5 * period
         better = c_alt < np.where(far, 0.5, 1.0) * cost[ys, xs]
+        # ... and be shared by neighbours: a real step is wider than one isolated pixel
+        jumped = np.zeros((h, w), dtype=np.uint8)
+        jumped[ys[better & far], xs[better & far]] = 1
+        support = cv2.filter2D(
+            jumped, -1, np.ones((3, 3), np.uint8), borderType=cv2.BORDER_CONSTANT
+        )
+        better &= ~far | (support[ys, xs] >= 3)  # itself and at least two neighbours
         thick[ys[better], xs[better]] = t_alt[better]
         cost[ys[better], xs[better]] = c_alt[better]
 
