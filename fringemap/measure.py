@@ -495,6 +495,9 @@ def measure(
         noise=noise_full,
         off_model_factor=MeasureSettings.off_model_factor,
     )
+    # the full-resolution intermediates are no longer needed: free them before statistics
+    # (keeps the peak memory of a 12-megapixel photo lower)
+    del thick, cost, edge, pred, usable, dark, no_film
     gain_full_centre = float(gain.evaluate_at(np.array([h // 2]), np.array([w // 2]), (h, w))[0])
     gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 
