@@ -28,7 +28,6 @@ References
 
 from __future__ import annotations
 
-import csv
 import difflib
 import re
 from dataclasses import dataclass, field
@@ -133,33 +132,9 @@ def _normalised(power: np.ndarray, where: str) -> np.ndarray:
 
 
 def _read_csv_columns(path: Path, ncols: int, what: str, where: str) -> np.ndarray:
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(
-            f"cannot read {what} CSV ({exc.__class__.__name__})", where=where
-        ) from None
-    rows = []
-    for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
-        cells = [c.strip() for c in row if c.strip()]
-        if not cells or cells[0].startswith("#"):
-            continue
-        try:
-            values = [float(c) for c in cells]
-        except ValueError:
-            if not rows:
-                continue  # header
-            raise OptionError(f"{path}: line {lineno}: not a number", where=where) from None
-        if len(values) != ncols:
-            raise OptionError(
-                f"{path}: line {lineno}: expected {ncols} columns, got {len(values)}", where=where
-            )
-        rows.append(values)
-    if len(rows) < 3:
-        raise OptionError(f"{path}: {what} CSV needs at least 3 rows", where=where)
-    data = np.array(rows)
-    if not np.all(np.isfinite(data)):
-        raise OptionError(f"{path}: {what} CSV contains NaN or inf", where=where)
+    from .._csv import read_numeric_csv
+
+    data = np.array(read_numeric_csv(path, columns=(ncols,), what=what, where=where, min_rows=3))
     if np.any(np.diff(data[:, 0]) <= 0):
         raise OptionError(f"{path}: wavelengths must increase strictly", where=where)
     if data[0, 0] > GRID_NM[0] + 20 or data[-1, 0] < GRID_NM[-1] - 20:

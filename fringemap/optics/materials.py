@@ -25,7 +25,6 @@ References
 
 from __future__ import annotations
 
-import csv
 import difflib
 import warnings
 from collections.abc import Callable
@@ -149,36 +148,15 @@ def _check_samples(mat: Material, *, where: str) -> None:
 
 
 def _from_csv(path: Path) -> Material:
+    from .._csv import read_numeric_csv
+
     where = str(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(
-            f"cannot read index CSV ({exc.__class__.__name__})", where=where
-        ) from None
-    rows = []
-    for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
-        cells = [c.strip() for c in row if c.strip()]
-        if not cells or cells[0].startswith("#"):
-            continue
-        try:
-            values = [float(c) for c in cells]
-        except ValueError:
-            if not rows:  # a header line
-                continue
-            raise OptionError(f"line {lineno}: not a number in {row!r}", where=where) from None
-        if len(values) not in (2, 3):
-            raise OptionError(
-                f"line {lineno}: expected wavelength_nm,n[,k], got {len(values)} columns",
-                where=where,
-            )
-        rows.append(values + [0.0] * (3 - len(values)))
-    if len(rows) < 2:
-        raise OptionError("index CSV needs at least two rows of wavelength_nm,n[,k]", where=where)
+    rows = [
+        r + [0.0] * (3 - len(r))
+        for r in read_numeric_csv(path, columns=(2, 3), what="index", where=where, min_rows=2)
+    ]
     data = np.array(rows)
     wl, n, k = data.T
-    if not np.all(np.isfinite(data)):
-        raise OptionError("index CSV contains NaN or inf", where=where)
     if np.any(np.diff(wl) <= 0):
         raise OptionError("wavelengths must increase strictly down the file", where=where)
     if np.any(n <= 0):
