@@ -15,7 +15,6 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
 from .figures import DPI, NAN_GREY, THICKNESS_CMAP
 
 __all__ = ["draw_series", "draw_kymograph"]
@@ -35,18 +34,9 @@ def _figure(width_in: float, height_in: float):
 
 
 def _save(fig, path: str | os.PathLike[str]) -> Path:
-    from ..io.write import atomic_path
+    from .figures import _save_png
 
-    target = Path(os.fspath(path))
-    with atomic_path(target) as tmp:
-        fig.savefig(
-            tmp,
-            format="png",
-            dpi=DPI,
-            facecolor="white",
-            metadata={"Software": f"fringemap {__version__}"},
-        )
-    return target
+    return _save_png(fig, path)
 
 
 def _edges(centres: np.ndarray, half_width: float) -> np.ndarray:
