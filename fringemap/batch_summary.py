@@ -93,6 +93,9 @@ def summary_row(
         ok = isinstance(value, int | float) and not isinstance(value, bool)
         row[key] = _clean(float(value)) if ok else None
     passed = numbers.get("passed")
+    analysis = numbers.get("analysis")
+    if isinstance(analysis, dict):  # a stats.json read back: the verdict against the spec
+        passed = {"pass": True, "fail": False}.get(analysis.get("verdict"))
     row["passed"] = passed if isinstance(passed, bool) else None
     row["seconds"] = round(float(seconds), 3)
     return row

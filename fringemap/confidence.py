@@ -74,6 +74,10 @@ def _classify_kernel(
             if not usable[y, x] or not np.isfinite(t):
                 out_r[y, x] = OFF_MODEL
                 continue
+            c = cost[y, x]
+            if c > off_thr:  # a colour the stack cannot show (judged first: a wrong lamp
+                out_r[y, x] = OFF_MODEL  # or stack must not pass for a faded film)
+                continue
             i = int(round((t - t0) / step))
             if i < 0:
                 i = 0
@@ -85,10 +89,6 @@ def _classify_kernel(
                 or (t >= t_max - 2 * step and t_max > t0)
             ):
                 out_r[y, x] = BEYOND
-                continue
-            c = cost[y, x]
-            if c > off_thr:
-                out_r[y, x] = OFF_MODEL
                 continue
             cy = min(hc - 1, y // f)
             cx = min(wc - 1, x // f)

@@ -53,6 +53,19 @@ class JobOutcome:
     warnings: tuple[str, ...] = ()
 
 
+def _verdict(stats_path) -> bool | None:
+    """Pass (True) / fail (False) against the spec from a written stats.json; None if unjudged."""
+    import json
+
+    if not stats_path:
+        return None
+    try:
+        verdict = json.loads(Path(stats_path).read_text(encoding="utf-8"))["analysis"]["verdict"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return None
+    return {"pass": True, "fail": False}.get(verdict)
+
+
 def load_camera_for(recipe: Recipe):
     """The camera correction named by ``camera.calibration`` (None when empty)."""
     spec = recipe.get("camera", "calibration")
@@ -108,7 +121,11 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
         if job.report or settings.write_report:
             from .report.inspection import write_report
 
-            written.update(write_report(result, photo, job.out_dir, stem))
+            try:
+                written.update(write_report(result, photo, job.out_dir, stem))
+            except BaseException:
+                _remove_quietly(written.values())  # a failed photo leaves none of its outputs
+                raise
     except FringemapError as exc:
         return JobOutcome(
             path=str(path),
@@ -127,7 +144,7 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
         "max_nm": s.max_nm,
         "nonuniformity_percent": s.nonuniformity_percent,
         "coverage": s.coverage,
-        "passed": s.passed,
+        "passed": _verdict(written.get("stats")),
         "count_px": s.count_px,
     }
     return JobOutcome(
@@ -139,3 +156,13 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
         written={k: str(v) for k, v in written.items()},
         warnings=tuple(result.warnings),
     )
+
+
+def _remove_quietly(paths) -> None:
+    import os
+
+    for p in paths:
+        try:
+            os.unlink(p)
+        except OSError:
+            pass  # already gone: the error that led here is the one to report

@@ -507,7 +507,17 @@ def measure(
         warnings.append(f"{100 * sat_frac:.1f} % of pixels are saturated: lower the exposure")
     stats = uniformity(thick_out, mask=roi_mask)
     if stats.coverage < 0.01:
-        warnings.append("no film found: coverage is below 1 % of the region of interest")
+        inside = reasons[roi_mask]
+        off = np.count_nonzero(inside == REASON_CODES["off-model"])
+        far = np.count_nonzero(inside == REASON_CODES["beyond-range"])
+        if max(off, far) > 0.5 * inside.size:
+            what = "lie beyond the search range" if far > off else "fit no colour of this stack"
+            warnings.append(
+                f"nothing measured: most pixels {what}; check --film, --substrate, --light, "
+                "--sensor and --range against the photo"
+            )
+        else:
+            warnings.append("no film found: coverage is below 1 % of the region of interest")
     # how sure chromaticity alone is of the main area's order (exposure cannot help a
     # uniform film): the largest chroma-pass region's margin
     chroma_margin = (
@@ -521,7 +531,7 @@ def measure(
         margin_r = float(sel.region_margin[r])
         if r == big_regions[0]:
             margin_r = min(margin_r, chroma_margin)
-        if share > 0.1 and not sel.region_anchored[r] and margin_r < 1.0:
+        if share > 0.1 and not sel.region_anchored[r] and margin_r < 1.0 and stats.count_px:
             warnings.append(
                 f"the fringe order of a film area covering {100 * share:.0f} % of the photo is "
                 f"uncertain (order margin {margin_r:.2f}): another order fits almost as well; "
