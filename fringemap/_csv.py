@@ -36,11 +36,13 @@ def read_numeric_csv(
         Unreadable file, a non-numeric cell after the header, a row of another
         width, too few rows, or NaN/inf values; the message names the file and line.
     """
+    # the file is named once: as the place, or in the message after the option
+    name = "" if where == str(path) else f"{path}: "
     try:
         text = path.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
         raise OptionError(
-            f"{path}: cannot read {what} CSV ({exc.__class__.__name__})", where=where
+            f"{name}cannot read {what} CSV ({exc.__class__.__name__})", where=where
         ) from None
     rows: list[list[float]] = []
     for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
@@ -52,16 +54,16 @@ def read_numeric_csv(
         except ValueError:
             if not rows:  # a header line
                 continue
-            raise OptionError(f"{path}: line {lineno}: not a number", where=where) from None
+            raise OptionError(f"{name}line {lineno}: not a number", where=where) from None
         if len(values) not in columns:
             expected = " or ".join(str(c) for c in columns)
             raise OptionError(
-                f"{path}: line {lineno}: expected {expected} columns, got {len(values)}",
+                f"{name}line {lineno}: expected {expected} columns, got {len(values)}",
                 where=where,
             )
         rows.append(values)
     if len(rows) < min_rows:
-        raise OptionError(f"{path}: {what} CSV needs at least {min_rows} rows", where=where)
+        raise OptionError(f"{name}{what} CSV needs at least {min_rows} rows", where=where)
     if not np.all(np.isfinite(np.array([v for r in rows for v in r]))):
-        raise OptionError(f"{path}: {what} CSV contains NaN or inf", where=where)
+        raise OptionError(f"{name}{what} CSV contains NaN or inf", where=where)
     return rows

@@ -167,7 +167,24 @@ def _parse_circle(body: str, original: str) -> CircleRoi:
 def _read_mask(path: str) -> MaskRoi:
     if not path.strip():
         raise OptionError(f"expected mask:PATH with a file path, got 'mask:{path}'", where=_WHERE)
-    image = cv2.imread(path, cv2.IMREAD_GRAYSCALE)
+    # read the bytes here (not cv2.imread): a missing or unreadable file gets its own
+    # message, and OpenCV prints no warning of its own on the terminal
+    try:
+        data = np.fromfile(path, dtype=np.uint8)
+    except FileNotFoundError:
+        raise InputFileError(
+            f"mask image {path!r} does not exist; check the file name and folder", where=_WHERE
+        ) from None
+    except IsADirectoryError:
+        raise InputFileError(
+            f"mask image {path!r} is a folder; give the path of an image file", where=_WHERE
+        ) from None
+    except OSError as exc:
+        raise InputFileError(
+            f"mask image {path!r} cannot be read ({exc.strerror or type(exc).__name__})",
+            where=_WHERE,
+        ) from None
+    image = cv2.imdecode(data, cv2.IMREAD_GRAYSCALE) if data.size else None
     if image is None:
         raise InputFileError(
             f"expected a readable 8-bit mask image, could not read {path!r}", where=_WHERE

@@ -32,6 +32,7 @@ interval is given); every ``video_step``-th frame is measured.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import sys
@@ -92,6 +93,9 @@ def _video_frames(path: Path, step: int, interval: float | None) -> Iterator[tup
     where = str(path)
     if not path.is_file():
         raise InputFileError("does not exist; check the file name and folder", where=where)
+    # the video decoder's own log lines (e.g. "moov atom not found") would break the
+    # one-line error; read when the decoder starts, so set before the first capture
+    os.environ.setdefault("OPENCV_FFMPEG_LOGLEVEL", "-8")
     cap = cv2.VideoCapture(where)
     try:
         if not cap.isOpened():
@@ -289,7 +293,14 @@ def run_series(
     from tqdm import tqdm
 
     from .io import read_photo
-    from .io.write import check_no_clash, check_output_dir, write_float_tiff, write_json, write_text
+    from .io.write import (
+        atomic_path,
+        check_no_clash,
+        check_output_dir,
+        write_float_tiff,
+        write_json,
+        write_text,
+    )
     from .job import load_camera_for
     from .measure import measure
     from .report.series_figures import draw_kymograph, draw_series
@@ -347,7 +358,7 @@ def run_series(
     records: list[dict] = []
     failed: list[tuple[str, str]] = []
     line = distance = None
-    attempted = 0
+    attempted = unreadable = 0
     try:
         for index, source, t, photo, error in frames():
             attempted += 1
@@ -378,6 +389,7 @@ def run_series(
             bar.update(1)
             if error is not None:
                 failed.append((source, error))
+                unreadable += photo is None
                 continue
             if distance is None:
                 distance = prof.distance_px
@@ -401,6 +413,11 @@ def run_series(
         bar.close()
     if not records:
         first = failed[0][1] if failed else "no frames"
+        if failed and unreadable == len(failed):  # not one frame could even be read
+            raise InputFileError(
+                f"none of the {attempted} frames could be read (first: {first})",
+                where=str(sources[0]),
+            )
         raise MeasurementError(
             f"none of the {attempted} frames could be measured (first: {first})",
             where=str(sources[0]),
@@ -422,32 +439,9 @@ def run_series(
     for r in records:
         row = [r["time"], r["index"], r["source"]] + [float(r[k]) for k in _CSV_COLUMNS[3:]]
         lines.append(",".join(_cell(v) for v in row))
-    write_text(paths["csv"], "\n".join(lines) + "\n")
     kymo = np.stack([r["profile"] for r in records])
     (x1, y1), (x2, y2) = line
-    write_float_tiff(
-        paths["kymograph"],
-        kymo,
-        description={
-            "content": "film thickness along the profile line (columns) against time (rows)",
-            "unit": "nm",
-            "software": f"fringemap {__version__}",
-            "recipe_hash": recipe.hash,
-            "profile_start_xy_px": [x1, y1],
-            "profile_end_xy_px": [x2, y2],
-            "column_distance_px": [float(distance[0]), float(distance[-1])],
-            "row_time_s": [float(v) for v in time_s],
-        },
-    )
     title = Path(os.fspath(sources[0])).name if video is not None else f"{len(records)} frames"
-    draw_kymograph(
-        kymo,
-        time_s,
-        distance,
-        paths["kymograph_plot"],
-        title=f"{title}: thickness along ({x1:g}, {y1:g})-({x2:g}, {y2:g})",
-    )
-    draw_series(time_s, mean, std, paths["plot"], title=f"{title}: mean over the region", fit=fit)
     trend = None
     if math.isfinite(fit.rate_nm_per_s):
         trend = (
@@ -471,7 +465,33 @@ def run_series(
         "outputs": {k: str(v) for k, v in paths.items()},
         "recipe": recipe.to_dict(),
     }
-    write_json(paths["json"], doc)
+    # all the files or none: each is written under a temporary name, renamed at the end
+    with contextlib.ExitStack() as stack:
+        tmp = {kind: stack.enter_context(atomic_path(p)) for kind, p in paths.items()}
+        write_text(tmp["csv"], "\n".join(lines) + "\n")
+        write_float_tiff(
+            tmp["kymograph"],
+            kymo,
+            description={
+                "content": "film thickness along the profile line (columns) against time (rows)",
+                "unit": "nm",
+                "software": f"fringemap {__version__}",
+                "recipe_hash": recipe.hash,
+                "profile_start_xy_px": [x1, y1],
+                "profile_end_xy_px": [x2, y2],
+                "column_distance_px": [float(distance[0]), float(distance[-1])],
+                "row_time_s": [float(v) for v in time_s],
+            },
+        )
+        draw_kymograph(
+            kymo,
+            time_s,
+            distance,
+            tmp["kymograph_plot"],
+            title=f"{title}: thickness along ({x1:g}, {y1:g})-({x2:g}, {y2:g})",
+        )
+        draw_series(time_s, mean, std, tmp["plot"], title=f"{title}: mean over the region", fit=fit)
+        write_json(tmp["json"], doc)
     return SeriesResult(
         time_s=time_s, mean_nm=mean, fit=fit, time_basis=basis, failed=tuple(failed), written=paths
     )

@@ -752,9 +752,30 @@ def write_demo_images(folder, *, names=None) -> list[Path]:
         if names is not None and name not in names:
             continue
         sim, recipe, note = make()
-        paths += list(write_simulated(sim, folder, name, fmt="jpg").values())
-        paths.append(
-            _write(folder / f"{name}.recipe.toml", Recipe.from_dict(recipe).to_toml().encode())
-        )
-        paths.append(_write(folder / f"{name}.txt", (note + "\n").encode()))
+        planned = [
+            folder / f"{name}{end}"
+            for end in (".jpg", ".truth.tif", ".json", ".recipe.toml", ".txt")
+        ]
+        before = {p: _identity(p) for p in planned}
+        try:
+            paths += list(write_simulated(sim, folder, name, fmt="jpg").values())
+            paths.append(
+                _write(folder / f"{name}.recipe.toml", Recipe.from_dict(recipe).to_toml().encode())
+            )
+            paths.append(_write(folder / f"{name}.txt", (note + "\n").encode()))
+        except BaseException:
+            # a scenario is written whole or not at all: remove the files this run wrote
+            for p in planned:
+                if _identity(p) is not None and _identity(p) != before[p]:
+                    p.unlink(missing_ok=True)
+            raise
     return paths
+
+
+def _identity(path: Path) -> tuple[int, int, int] | None:
+    """(device, inode, mtime) of a file, None when absent: tells a file just written."""
+    try:
+        st = path.stat()
+    except OSError:
+        return None
+    return (st.st_dev, st.st_ino, st.st_mtime_ns)

@@ -10,11 +10,28 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
+import traceback
 
 from .. import __version__
-from ..errors import EXIT_INTERNAL, EXIT_INTERRUPTED, FringemapError
+from ..errors import EXIT_INTERNAL, EXIT_INTERRUPTED, FringemapError, OptionError
 
 __all__ = ["main", "build_parser", "COMMAND_MODULES"]
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose mistakes are one-line :class:`OptionError` s (exit 2).
+
+    argparse would print the whole usage and exit the process; the command
+    line prints one line instead, like every other error, and ``main`` returns
+    the exit code (so it can be called in-process). Subcommand parsers are of
+    this class too (``add_subparsers`` uses the parent's class).
+    """
+
+    def error(self, message: str):
+        command = self.prog.split(maxsplit=1)[1] if " " in self.prog else ""
+        hint = f"fringemap {command} --help" if command else "fringemap --help"
+        raise OptionError(f"{' '.join(message.split())} (see {hint})")
+
 
 #: command modules, in help order; each has register(subparsers, common)
 COMMAND_MODULES = [
@@ -30,13 +47,13 @@ COMMAND_MODULES = [
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (also used to generate the option reference)."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="fringemap",
         description="Film-thickness maps from photographs of thin-film interference colours. "
         "Thickness and wavelength in nm, angles in degrees.",
     )
     parser.add_argument("--version", action="version", version=f"fringemap {__version__}")
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False)
     common.add_argument("--debug", action="store_true", help="show full tracebacks on errors")
     common.add_argument("--quiet", "-q", action="store_true", help="print only errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
@@ -72,9 +89,22 @@ SHOWN_WARNINGS: set[str] = set()
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Entry point of the ``fringemap`` command; returns the exit code."""
+    """Entry point of the ``fringemap`` command; returns the exit code.
+
+    Every error is one line on stderr, ``fringemap: error: WHERE: WHAT``, and
+    the exit code of :mod:`fringemap.errors`; with ``--debug`` the traceback is
+    printed above that line (the exit code stays the same).
+    """
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args, extra = parser.parse_known_args(argv)
+        if extra:
+            command = getattr(args, "command", None)
+            hint = f"fringemap {command} --help" if command else "fringemap --help"
+            raise OptionError(f"unrecognized arguments: {' '.join(extra)} (see {hint})")
+    except OptionError as exc:  # a malformed command line (argparse's own checks)
+        print(f"fringemap: error: {exc}", file=sys.stderr)
+        return exc.exit_code
     if not getattr(args, "command", None):
         parser.print_help()
         return 2
@@ -85,8 +115,8 @@ def main(argv: list[str] | None = None) -> int:
         return int(args.func(args) or 0)
     except FringemapError as exc:
         if debug:
-            raise
-        print(f"fringemap: error: {exc}", file=sys.stderr)
+            traceback.print_exc()
+        print(f"fringemap: error: {_one_line(exc)}", file=sys.stderr)
         return exc.exit_code
     except BrokenPipeError:  # output piped into head, less...: not an error
         sys.stderr.close()
@@ -96,10 +126,15 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_INTERRUPTED
     except Exception as exc:  # a bug: say so on one line
         if debug:
-            raise
+            traceback.print_exc()
         print(
-            f"fringemap: internal error: {exc.__class__.__name__}: {exc} "
+            f"fringemap: internal error: {exc.__class__.__name__}: {_one_line(exc)} "
             "(run again with --debug for details)",
             file=sys.stderr,
         )
         return EXIT_INTERNAL
+
+
+def _one_line(exc: BaseException) -> str:
+    """An error's text on one line (a stray newline in a library's message is folded)."""
+    return " ".join(str(exc).split())

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
 import warnings
 from pathlib import Path
@@ -30,7 +31,7 @@ def cmd_calibrate(args) -> int:
             where="--corners" if args.corners else "--reference",
         )
     recipe = recipe_from_args(args)
-    out = Path(args.out)
+    out = _check_out(args)
     photo = read_photo(args.photo)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", FringemapWarning)
@@ -46,11 +47,18 @@ def cmd_calibrate(args) -> int:
         else:
             recipe.require_stack()
             model = calibrate_from_reference(photo, recipe, references=args.reference)
-    written = [save_camera_model(model, out)]
     if args.corners:
         from ..calibration.diagnostic import write_chart_diagnostic
+        from ..io.write import atomic_path
 
-        written.append(write_chart_diagnostic(cal, out.with_suffix(".patches.png")))
+        # the camera file and its picture, or neither
+        written = [out, out.with_suffix(".patches.png")]
+        with contextlib.ExitStack() as stack:
+            tmp = [stack.enter_context(atomic_path(p)) for p in written]
+            save_camera_model(model, tmp[0])
+            write_chart_diagnostic(cal, tmp[1])
+    else:
+        written = [save_camera_model(model, out)]
     for w in caught:
         if issubclass(w.category, FringemapWarning):
             print(f"fringemap: warning: {w.message}", file=sys.stderr)
@@ -71,6 +79,36 @@ def cmd_calibrate(args) -> int:
         for p in written:
             print(f"wrote {p}")
     return 0
+
+
+def _check_out(args) -> Path:
+    """``--out``: a ``.toml`` file in an existing folder, overwriting no input."""
+    from ..errors import OptionError
+    from ..io.write import check_no_clash, check_output_dir
+
+    out = Path(args.out)
+    if out.suffix.lower() != ".toml":
+        raise OptionError(
+            f"expected a camera file name ending in .toml, got {args.out!r}", where="--out"
+        )
+    if out.is_dir():
+        raise OptionError(
+            f"{args.out!r} is a folder; give the camera file's name, e.g. {args.out}/camera.toml",
+            where="--out",
+        )
+    planned = [out] + ([out.with_suffix(".patches.png")] if args.corners else [])
+    inputs = [p for p in (args.photo, args.recipe) if p]
+    check_no_clash(planned, inputs)
+    folder = out.parent
+    if not folder.is_dir():
+        from ..errors import OutputError
+
+        raise OutputError(
+            f"cannot be written: its folder {str(folder)!r} does not exist; create it first",
+            where=str(out),
+        )
+    check_output_dir(folder, inputs=inputs)  # writable? (creates nothing: the folder exists)
+    return out
 
 
 def register(sub, common) -> None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 import re
 
@@ -28,19 +29,41 @@ def cmd_materials(args) -> int:
     return 0
 
 
+def _check_name(name: str) -> str:
+    """``--name``: a plain file name stem, so the chart stays inside ``--out``."""
+    from ..errors import OptionError
+
+    text = name.strip()
+    if not text or text in (".", "..") or any(c in text for c in "/\\\0") or text != name:
+        raise OptionError(
+            f"expected a file name stem without folders (e.g. oxide-F11), got {name!r}; "
+            "choose the folder with --out",
+            where="--name",
+        )
+    return text
+
+
 def cmd_chart(args) -> int:
-    from ..io.write import check_output_dir, write_text
+    from ..io.write import atomic_path, check_output_dir, write_text
     from ..report.chart import chart_csv_text, draw_chart
+
+    stem = _check_name(args.name) if args.name is not None else None
+    from ..job import load_camera_for
 
     recipe = recipe_from_args(args)
     recipe.require_stack()
+    load_camera_for(recipe)  # the chart does not use it, but a named file must be sound
     out = check_output_dir(args.out)
     table = recipe.colour_table()
-    stem = args.name or _chart_stem(recipe)
+    stem = stem or _chart_stem(recipe)
     png = out / f"{stem}.chart.png"
     csv_path = out / f"{stem}.chart.csv"
-    write_text(csv_path, chart_csv_text(table))
-    draw_chart(table, recipe.stack(), angle_deg=recipe.get("light", "angle_deg"), path=png)
+    # both files or neither: each is written under a temporary name, renamed at the end
+    with contextlib.ExitStack() as stack:
+        tmp_csv = stack.enter_context(atomic_path(csv_path))
+        tmp_png = stack.enter_context(atomic_path(png))
+        write_text(tmp_csv, chart_csv_text(table))
+        draw_chart(table, recipe.stack(), angle_deg=recipe.get("light", "angle_deg"), path=tmp_png)
     if not args.quiet:
         print(f"wrote {png}")
         print(f"wrote {csv_path}")

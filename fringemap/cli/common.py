@@ -68,11 +68,43 @@ def add_stack_options(p: argparse.ArgumentParser) -> None:
     )
 
 
+#: the option that sets each recipe key (errors in an option's value name the option)
+OPTION_OF_KEY = {
+    "stack.film": "--film",
+    "stack.substrate": "--substrate",
+    "stack.ambient": "--ambient",
+    "stack.layers": "--layer",
+    "light.source": "--light",
+    "light.angle_deg": "--angle",
+    "light.aperture": "--aperture",
+    "camera.sensor": "--sensor",
+    "camera.calibration": "--camera",
+    "search.range_nm": "--range",
+    "search.step_nm": "--step",
+    "measure.roi": "--roi",
+    "measure.anchors": "--anchor",
+}
+
+
 def recipe_from_args(args):
+    from ..errors import OptionError
     from ..recipe import load_recipe
-    from .report_options import report_overrides
 
     recipe = load_recipe(args.recipe)
+    try:
+        return _with_options(recipe, args)
+    except OptionError as exc:
+        where = exc.where or ""
+        for dotted, option in OPTION_OF_KEY.items():
+            if where == dotted or where.startswith((dotted + "[", dotted + ".")):
+                exc.where = option
+                break
+        raise
+
+
+def _with_options(recipe, args):
+    from .report_options import report_overrides
+
     return recipe.with_overrides(
         {
             "stack.film": args.film,
@@ -107,15 +139,22 @@ def progress_bar(total: int, desc: str, quiet: bool):
 
 
 def unique_stems(paths) -> list[str]:
-    """File stems made unique by numbering repeats (a.png, x/a.png -> a, a-1)."""
+    """File stems made unique by numbering repeats (a.png, x/a.png -> a, a-1).
+
+    A number is never one another photo already has as its own stem
+    (a.png, x/a.png, a-1.png -> a, a-2, a-1), so no two photos share outputs.
+    """
+    paths = list(paths)
+    taken = {p.stem for p in paths}
+    used: set[str] = set()
     stems: list[str] = []
-    seen: dict[str, int] = {}
     for p in paths:
         stem = p.stem
-        if stem in seen:
-            seen[stem] += 1
-            stem = f"{stem}-{seen[stem]}"
-        else:
-            seen[stem] = 0
+        if stem in used:
+            n = 1
+            while f"{p.stem}-{n}" in used or f"{p.stem}-{n}" in taken:
+                n += 1
+            stem = f"{p.stem}-{n}"
+        used.add(stem)
         stems.append(stem)
     return stems

@@ -23,7 +23,11 @@ from .render import Renderer, lab_chroma
 from .spectra import GRID_NM, Detector, Light, parse_detector, parse_light
 from .transfer import srgb_encode
 
-__all__ = ["ColourTable", "build_colour_table", "order_marks_nm"]
+__all__ = ["ColourTable", "build_colour_table", "order_marks_nm", "MAX_TABLE_ROWS"]
+
+#: Most thicknesses one table may hold (e.g. 0:100000 nm in 1 nm steps): a larger
+#: range or finer step is refused before memory is spent on it.
+MAX_TABLE_ROWS = 100_001
 
 
 @dataclass(frozen=True)
@@ -131,6 +135,12 @@ def build_colour_table(
             where="--step",
         )
     n = int(np.floor((hi - lo) / step_nm + 1e-9)) + 1
+    if n > MAX_TABLE_ROWS:
+        raise OptionError(
+            f"the colour table would have {n} thicknesses ({lo:g}:{hi:g} nm in steps of "
+            f"{step_nm:g} nm), more than {MAX_TABLE_ROWS}; narrow --range or raise --step",
+            where="--range",
+        )
     t = lo + step_nm * np.arange(n)
     R = reflectance(
         stack,

@@ -74,7 +74,7 @@ class Material:
         lo, hi = self.range_nm
         if wl.size and (np.nanmin(wl) < lo - 1e-9 or np.nanmax(wl) > hi + 1e-9):
             raise OptionError(
-                f"{self.name!r} has data for {lo:g}-{hi:g} nm only, "
+                f"has data for {lo:g}-{hi:g} nm only, "
                 f"asked for {np.nanmin(wl):g}-{np.nanmax(wl):g} nm",
                 where=self.name,
             )

@@ -29,7 +29,7 @@ import math
 from collections.abc import Iterator
 from dataclasses import dataclass
 
-from ..errors import OptionError
+from ..errors import InputFileError, OptionError
 from ..geometry import Scale, check_segment, parse_scale_points
 from ..roi import CircleRoi, Roi, parse_roi, parse_segment, roi_mask
 from ..sites import SITE_LAYOUTS
@@ -53,11 +53,21 @@ SCALE_AGREEMENT = 0.005
 
 @contextlib.contextmanager
 def relabel(where: str) -> Iterator[None]:
-    """Re-raise an :class:`OptionError` from the block as naming ``where``."""
+    """Re-raise an :class:`OptionError` (or the :class:`InputFileError` of a mask image)
+    from the block as naming ``where``."""
     try:
         yield
-    except OptionError as exc:
-        raise OptionError(exc.message, where=where) from None
+    except (OptionError, InputFileError) as exc:
+        raise type(exc)(exc.message, where=where) from None
+
+
+def _where(recipe, key: str, option: str) -> str:
+    """What an error in ``report.KEY`` names: the option when it was typed, else the
+    recipe file and key (or the key alone, for a recipe made in code)."""
+    dotted = f"report.{key}"
+    if dotted in getattr(recipe, "overridden", ()):
+        return option
+    return recipe.label(dotted, dotted)
 
 
 # ---------------------------------------------------------------- recipe validators
@@ -194,18 +204,20 @@ class ReportSettings:
         """
         rep = recipe.values["report"]
         roi_text = recipe.get("measure", "roi")
-        with relabel("--roi"):
+        with relabel(recipe.label("measure.roi", "--roi")):
             roi = parse_roi(roi_text)
         spec = None
         if rep.get("spec"):
-            with relabel("report.spec"):
+            with relabel(_where(recipe, "spec", "--spec")):
                 spec = parse_spec(rep["spec"])
         scale, source = None, ""
         points = rep.get("scale_points", "") or ""
         if rep.get("scale_px_per_mm") is not None:
             scale, source = Scale(rep["scale_px_per_mm"]), "scale_px_per_mm"
         if points:
-            from_points = parse_scale_points(points, where="report.scale_points")
+            from_points = parse_scale_points(
+                points, where=_where(recipe, "scale_points", "--scale-points")
+            )
             if scale is not None:
                 ratio = from_points.px_per_mm / scale.px_per_mm
                 if abs(ratio - 1.0) > SCALE_AGREEMENT:
@@ -224,7 +236,7 @@ class ReportSettings:
                 where="--edge-exclusion",
             )
         sites = rep.get("sites")
-        sites = None if sites is None else check_sites(sites, "report.sites")
+        sites = None if sites is None else check_sites(sites, _where(recipe, "sites", "--sites"))
         if sites is not None and not isinstance(roi, CircleRoi):
             raise OptionError(
                 f"site layouts need a round wafer: a circle ROI (--roi circle:CX,CY,R), "
@@ -240,12 +252,12 @@ class ReportSettings:
                     where="--edge-exclusion",
                 )
         profiles = tuple(
-            parse_segment(text, f"report.profiles[{i}]")
+            parse_segment(text, _where(recipe, "profiles", "--profile") + f"[{i}]")
             for i, text in enumerate(rep.get("profiles", ()))
         )
         regions = []
         for i, text in enumerate(rep.get("regions", ())):
-            with relabel("--region"):
+            with relabel(_where(recipe, "regions", "--region")):
                 regions.append((f"R{i + 1}", text, parse_roi(text)))
         return cls(
             roi_text=roi_text,
