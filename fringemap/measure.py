@@ -65,18 +65,16 @@ class MeasureSettings:
     max_coarse_sigma = 0.02
 
 
-def parse_anchor(text: str) -> tuple[float, float, float]:
-    """``X,Y=NM`` → (x_px, y_px, thickness_nm)."""
+def parse_anchor(text: str, *, where: str = "--anchor") -> tuple[float, float, float]:
+    """``X,Y=NM`` → (x_px, y_px, thickness_nm); errors name ``where``."""
     try:
         xy, nm = text.split("=")
         x, y = (float(v) for v in xy.split(","))
         t = float(nm)
     except ValueError:
-        raise OptionError(f"expected X,Y=NM (pixels, nm), got {text!r}", where="--anchor") from None
+        raise OptionError(f"expected X,Y=NM (pixels, nm), got {text!r}", where=where) from None
     if not all(np.isfinite([x, y, t])) or t < 0:
-        raise OptionError(
-            f"anchor values must be finite and NM >= 0, got {text!r}", where="--anchor"
-        )
+        raise OptionError(f"anchor values must be finite and NM >= 0, got {text!r}", where=where)
     return x, y, t
 
 
@@ -233,12 +231,16 @@ def measure(
     # ---- masks that need no model --------------------------------------------------
     if roi_mask is None:
         roi_mask = make_roi_mask(parse_roi(recipe.get("measure", "roi")), (h, w))
+    anchor_where = "--anchor"
     if not anchors:
-        anchors = tuple(parse_anchor(a) for a in recipe.get("measure", "anchors"))
+        anchor_where = recipe.label("measure.anchors", "--anchor")
+        anchors = tuple(
+            parse_anchor(a, where=anchor_where) for a in recipe.get("measure", "anchors")
+        )
     for x, y, _ in anchors:
         if not (0 <= x < w and 0 <= y < h):
             raise OptionError(
-                f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where="--anchor"
+                f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where=anchor_where
             )
     linear = np.ascontiguousarray(linear, dtype=np.float32)
     saturated = photo.saturated
@@ -433,11 +435,11 @@ def measure(
         ys, xs = np.nonzero(redo)
         g = gain.evaluate_at(ys, xs, (h, w))
         q = encode(linear[ys, xs] / g[:, None])
-        gc = find_candidates(
+        gc = find_candidates(  # on the ~2 nm grid, refined by a parabola
             q,
-            e_tab,
+            e_coarse,
             t0_nm=t0,
-            step_nm=step,
+            step_nm=step * stride,
             k=MeasureSettings.k,
             intensity_weight=INTENSITY_WEIGHT_FULL,
         )
