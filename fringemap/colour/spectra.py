@@ -287,8 +287,8 @@ def _named_detector(key: str) -> Detector:
     curves = bundle().get(f"detector/{key}")
     if curves is None:
         return _named_detector_live(key)
-    kind, dataset_key, description = _DETECTORS[key]
-    return Detector(key, f"{description} ({dataset_key}, colour-science)", kind, curves)
+    kind, _dataset_key, description = _DETECTORS[key]
+    return Detector(key, f"{description} (colour-science datasets)", kind, curves)
 
 
 def _named_detector_live(key: str) -> Detector:
@@ -301,4 +301,4 @@ def _named_detector_live(key: str) -> Detector:
     curves = _resample(np.asarray(msds.wavelengths), np.asarray(msds.values))
     if kind == "camera":
         curves = curves / curves.max()
-    return Detector(key, f"{description} ({dataset_key}, colour-science)", kind, curves)
+    return Detector(key, f"{description} (colour-science datasets)", kind, curves)
