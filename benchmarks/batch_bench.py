@@ -31,26 +31,12 @@ import numpy as np
 def make_photos(folder: Path, n: int, h: int, w: int) -> list[Path]:
     import cv2
 
-    from fringemap import simulate as sim
-    from fringemap.optics.stack import Stack
+    from fringemap.bench import base_render, resized_noisy
 
-    small = (750, 1000)
-    t = 150 + 750 * sim.wedge(small, t0_nm=0, t1_nm=1, axis="x")
-    t = t + 25 * np.sin(np.arange(small[0])[:, None] / 60.0)
-    base = sim.render_photo(
-        t,
-        stack=Stack.from_names(film="sio2", substrate="db:main/Si/Aspnes"),
-        light="F11",
-        film_mask=sim.frame_mask(small, margin_px=25),
-        noise=0.0,
-        blur_px=0.5,
-        seed=1,
-    ).image
-    big = cv2.resize(base, (w, h), interpolation=cv2.INTER_LINEAR).astype(np.float32)
+    base = base_render()
     paths = []
     for i in range(n):
-        noisy = big + np.random.default_rng(10 + i).normal(0, 2.5, big.shape).astype(np.float32)
-        img = np.clip(np.round(noisy), 0, 255).astype(np.uint8)
+        img = resized_noisy(base, (h, w), seed=10 + i)
         path = folder / f"lot-{i:03d}.jpg"
         cv2.imwrite(str(path), img[..., ::-1], [cv2.IMWRITE_JPEG_QUALITY, 90])
         paths.append(path)

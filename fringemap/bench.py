@@ -40,32 +40,43 @@ def _recipe():
     )
 
 
-def make_photo(folder: Path, mp: int) -> Path:
-    """A simulated oxide-on-silicon JPEG of ``mp`` megapixels (rendered at 1 MP, resized)."""
-    import cv2
-
+def base_render() -> np.ndarray:
+    """A 1 MP (750 × 1000) simulated oxide-on-silicon photo, uint8 RGB, without noise."""
     from . import simulate as sim
     from .optics.stack import Stack
 
-    path = folder / f"bench-{mp}mp.jpg"
-    if path.exists():
-        return path
-    h, w = SIZES_MP[mp]
     small = (750, 1000)
     t = 150 + 750 * sim.wedge(small, t0_nm=0, t1_nm=1, axis="x")
     t = t + 25 * np.sin(np.arange(small[0])[:, None] / 60.0)
-    photo = sim.render_photo(
+    return sim.render_photo(
         t,
-        stack=Stack.from_names(film="sio2", substrate="si"),
+        stack=Stack.from_names(film="sio2", substrate="db:main/Si/Aspnes"),
         light="F11",
         film_mask=sim.frame_mask(small, margin_px=25),
         noise=0.0,
         blur_px=0.5,
         seed=1,
-    )
-    img = cv2.resize(photo.image, (w, h), interpolation=cv2.INTER_LINEAR).astype(np.float32)
-    img += np.random.default_rng(2).normal(0, 2.5, img.shape).astype(np.float32)
-    img = np.clip(np.round(img), 0, 255).astype(np.uint8)
+    ).image
+
+
+def resized_noisy(base: np.ndarray, shape: tuple[int, int], seed: int) -> np.ndarray:
+    """``base`` resized to ``shape`` (H, W) with 1 % noise (2.5 levels), uint8 RGB."""
+    import cv2
+
+    h, w = shape
+    img = cv2.resize(base, (w, h), interpolation=cv2.INTER_LINEAR).astype(np.float32)
+    img += np.random.default_rng(seed).normal(0, 2.5, img.shape).astype(np.float32)
+    return np.clip(np.round(img), 0, 255).astype(np.uint8)
+
+
+def make_photo(folder: Path, mp: int) -> Path:
+    """A simulated oxide-on-silicon JPEG of ``mp`` megapixels (rendered at 1 MP, resized)."""
+    import cv2
+
+    path = folder / f"bench-{mp}mp.jpg"
+    if path.exists():
+        return path
+    img = resized_noisy(base_render(), SIZES_MP[mp], seed=2)
     cv2.imwrite(str(path), img[..., ::-1], [cv2.IMWRITE_JPEG_QUALITY, 90])
     return path
 
