@@ -6,7 +6,7 @@ order. :func:`find_candidates` returns the ``K`` lowest minima per pixel,
 refined below the table step by fitting a parabola through the minimum and its
 two neighbours. It is exhaustive over the table, so the pipeline uses it on a
 downsampled image (and on the few full-resolution pixels at steps);
-:func:`local_search` is the full-resolution pass that looks only in a window
+:func:`fringemap.matching.fullres.fullres_match` is the full-resolution pass that looks only in a window
 around a predicted thickness.
 """
 
@@ -19,7 +19,7 @@ from numba import njit, prange
 
 from .space import _dist
 
-__all__ = ["Candidates", "find_candidates", "local_search"]
+__all__ = ["Candidates", "find_candidates"]
 
 
 @dataclass(frozen=True)
@@ -119,81 +119,3 @@ def find_candidates(
         q, e, ee, float(intensity_weight), int(k), float(t0_nm), float(step_nm), out_t, out_c
     )
     return Candidates(thickness_nm=out_t, cost=out_c)
-
-
-@njit(cache=True, parallel=True)
-def _local_kernel(q, e, ee, lam, t0, step, pred, half, out_t, out_c, out_edge):
-    n = e.shape[0]
-    for p in prange(q.shape[0]):
-        if not np.isfinite(pred[p]):
-            out_t[p] = np.nan
-            out_c[p] = np.inf
-            out_edge[p] = True
-            continue
-        q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
-        qq = q0 * q0 + q1 * q1 + q2 * q2
-        mu = lam * qq
-        c = int(round((pred[p] - t0) / step))
-        i0 = max(0, c - half)
-        i1 = min(n - 1, c + half)
-        best = np.inf
-        bi = i0
-        for i in range(i0, i1 + 1):
-            d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
-            if d < best:
-                best = d
-                bi = i
-        if 0 < bi < n - 1:
-            dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
-            dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
-            off, cost = _refine(dm, best, dp)
-        else:
-            off, cost = 0.0, best
-        out_t[p] = t0 + (bi + off) * step
-        out_c[p] = cost
-        # a minimum at the window's edge is not a true local minimum (unless at the table's)
-        out_edge[p] = (bi == i0 and i0 > 0) or (bi == i1 and i1 < n - 1)
-
-
-def local_search(
-    q: np.ndarray,
-    table_encoded: np.ndarray,
-    *,
-    t0_nm: float,
-    step_nm: float,
-    predicted_nm: np.ndarray,
-    window_nm: float,
-    intensity_weight: float,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Best thickness within ``predicted ± window`` for each pixel.
-
-    Returns
-    -------
-    thickness_nm : ndarray of shape (P,)
-    cost : ndarray of shape (P,)
-    at_edge : ndarray of bool, shape (P,)
-        True where the best value lies on the window's edge (the prediction
-        was off: the caller should search the whole table there).
-    """
-    q = np.ascontiguousarray(q, dtype=np.float64).reshape(-1, 3)
-    e = np.ascontiguousarray(table_encoded, dtype=np.float64)
-    ee = np.sum(e * e, axis=1)
-    pred = np.ascontiguousarray(predicted_nm, dtype=np.float64).reshape(-1)
-    out_t = np.empty(q.shape[0])
-    out_c = np.empty(q.shape[0])
-    out_edge = np.empty(q.shape[0], dtype=np.bool_)
-    half = max(1, int(np.ceil(window_nm / step_nm)))
-    _local_kernel(
-        q,
-        e,
-        ee,
-        float(intensity_weight),
-        float(t0_nm),
-        float(step_nm),
-        pred,
-        half,
-        out_t,
-        out_c,
-        out_edge,
-    )
-    return out_t, out_c, out_edge

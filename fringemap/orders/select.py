@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
+from ..matching.candidates import _refine
 from ..matching.space import _dist
 
 __all__ = ["OrderSelection", "select_orders"]
@@ -163,10 +164,7 @@ def _local_min(p, pred, q, e, ee, lam, t0, step, half, noise):
     if 0 < bi < n - 1:
         dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
         dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
-        den = dm - 2.0 * best + dp
-        if den > 0.0:
-            off = min(0.5, max(-0.5, 0.5 * (dm - dp) / den))
-            best = best - 0.25 * (dm - dp) * off
+        off, best = _refine(dm, best, dp)
     return t0 + (bi + off) * step, best / noise
 
 
