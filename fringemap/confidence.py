@@ -18,6 +18,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
+from .matching.fullres import _axis_weights, _interp
+
 __all__ = ["classify"]
 
 MEASURED, OUTSIDE, NO_FILM, SATURATED, TOO_DARK, OFF_MODEL, AMBIGUOUS, BEYOND = range(8)
@@ -32,7 +34,13 @@ def _classify_kernel(
     usable,
     thick,
     cost,
-    pred,
+    pred_c,
+    ys0,
+    ys1,
+    fys,
+    xs0,
+    xs1,
+    fxs,
     region_c,
     f,
     margins,
@@ -46,18 +54,19 @@ def _classify_kernel(
     noise,
     off_thr,
     min_region,
-    out_t,
     out_r,
-    out_conf,
 ):
     h, w = roi.shape
     n = faded.shape[0]
     hc, wc = region_c.shape
     sigma = np.sqrt(noise / 3.0)
+    # thick and cost are overwritten in place by the final thickness and the confidence
     for y in prange(h):
         for x in range(w):
-            out_t[y, x] = np.nan
-            out_conf[y, x] = 0.0
+            t = thick[y, x]
+            c = cost[y, x]
+            thick[y, x] = np.nan
+            cost[y, x] = 0.0
             if not roi[y, x]:
                 out_r[y, x] = OUTSIDE
                 continue
@@ -70,11 +79,9 @@ def _classify_kernel(
             if dark[y, x]:
                 out_r[y, x] = TOO_DARK
                 continue
-            t = thick[y, x]
             if not usable[y, x] or not np.isfinite(t):
                 out_r[y, x] = OFF_MODEL
                 continue
-            c = cost[y, x]
             if c > off_thr:  # a colour the stack cannot show (judged first: a wrong lamp
                 out_r[y, x] = OFF_MODEL  # or stack must not pass for a faded film)
                 continue
@@ -83,9 +90,10 @@ def _classify_kernel(
                 i = 0
             if i > n - 1:
                 i = n - 1
+            pred = _interp(pred_c, ys0[y], ys1[y], fys[y], xs0[x], xs1[x], fxs[x])
             if (
                 faded[i]
-                or pred[y, x] >= t_faded - 0.5 * step
+                or pred >= t_faded - 0.5 * step
                 or (t >= t_max - 2 * step and t_max > t0)
             ):
                 out_r[y, x] = BEYOND
@@ -100,12 +108,12 @@ def _classify_kernel(
                     out_r[y, x] = AMBIGUOUS
                     continue
             out_r[y, x] = MEASURED
-            out_t[y, x] = t
+            thick[y, x] = t
             sig_t = sigma / max(slope[i], 1e-6)
             m = 0.5 + margin / 4.0
             if m > 1.0:
                 m = 1.0
-            out_conf[y, x] = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
+            cost[y, x] = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
 
 
 def classify(
@@ -117,7 +125,7 @@ def classify(
     usable,
     thickness_nm,
     cost,
-    predicted_nm,
+    predicted_coarse_nm,
     region_coarse,
     factor,
     region_margin,
@@ -132,15 +140,23 @@ def classify(
     off_model_factor,
     min_region_px=12,
 ):
-    """Final thickness (float32, NaN = not measured), reasons (uint8) and confidence (float32).
+    """Final thickness (nm, NaN = not measured), reasons (uint8) and confidence (0-1).
 
-    All maps are (H, W); ``region_coarse`` is the coarse region label map
-    (block size ``factor``); ``faded`` and ``slope_per_nm`` are per table entry.
+    All maps are (H, W) except ``predicted_coarse_nm`` (the coarse thickness
+    map, NaN-free, nm) and ``region_coarse`` (its region labels), both on the
+    coarse grid of block size ``factor`` px; ``faded`` and ``slope_per_nm`` are
+    per table entry.
+
+    To keep a large photo's memory low, ``thickness_nm`` and ``cost`` (float32,
+    C-contiguous) are overwritten: they are returned as the final thickness and
+    the confidence.
     """
     h, w = roi.shape
-    out_t = np.empty((h, w), dtype=np.float32)
+    for name, a in (("thickness_nm", thickness_nm), ("cost", cost)):
+        if a.dtype != np.float32 or not a.flags.c_contiguous or a.shape != (h, w):
+            raise ValueError(f"{name} must be a C-contiguous float32 array of shape {(h, w)}")
     out_r = np.empty((h, w), dtype=np.uint8)
-    out_c = np.empty((h, w), dtype=np.float32)
+    pred_c = np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64)
     _classify_kernel(
         roi,
         dark,
@@ -149,7 +165,9 @@ def classify(
         usable,
         thickness_nm,
         cost,
-        predicted_nm,
+        pred_c,
+        *_axis_weights(h, pred_c.shape[0], int(factor)),
+        *_axis_weights(w, pred_c.shape[1], int(factor)),
         np.ascontiguousarray(region_coarse, dtype=np.int32),
         int(factor),
         np.asarray(region_margin, dtype=np.float64),
@@ -163,8 +181,6 @@ def classify(
         float(noise),
         float(off_model_factor * noise),
         int(min_region_px),
-        out_t,
         out_r,
-        out_c,
     )
-    return out_t, out_r, out_c
+    return thickness_nm, out_r, cost

@@ -30,7 +30,7 @@ from .colour.transfer import srgb_decode
 from .confidence import classify
 from .errors import MeasurementError, OptionError
 from .matching.candidates import find_candidates
-from .matching.fullres import block_mean, dark_mask, fullres_match
+from .matching.fullres import block_mean, dark_mask, fullres_match, interp_coarse
 from .matching.gain import fit_gain_field
 from .matching.space import INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL, encode
 from .orders.select import select_orders
@@ -412,10 +412,11 @@ def measure(
             np.isnan(filled), return_distances=False, return_indices=True
         )
         filled = filled[tuple(idx)]
-    thick, cost, edge, pred = fullres_match(
+    pred_c = np.nan_to_num(filled, nan=t0)
+    thick, cost, edge = fullres_match(
         linear,
         usable,
-        predicted_coarse_nm=np.nan_to_num(filled, nan=t0),
+        predicted_coarse_nm=pred_c,
         gain_coarse=gain_c,
         factor=f,
         table_encoded=e_tab,
@@ -428,12 +429,19 @@ def measure(
     sample_c = cost[:: max(1, h // 300), :: max(1, w // 300)]
     sample_c = sample_c[np.isfinite(sample_c)]
     noise_full = max(float(np.median(sample_c)) if sample_c.size else 1e-4, 3 * 0.002**2)
-    # pixels whose prediction was off (steps, scratches): search the whole table there
-    redo = edge | (np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full))
+    # pixels whose prediction was off (steps, scratches): search the whole table there.
+    # A poor fit alone counts only where neighbours share it: an isolated pixel (noise,
+    # a JPEG block, a speck of dust) cannot be a step, and no jump would be accepted there
+    poor = (np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full)).view(
+        np.uint8
+    )
+    poor_near = cv2.filter2D(poor, -1, np.ones((3, 3), np.uint8), borderType=cv2.BORDER_CONSTANT)
+    redo = edge | (poor.view(bool) & (poor_near >= 3))
+    del poor, poor_near
     n_redo = int(redo.sum())
     if n_redo:
         ys, xs = np.nonzero(redo)
-        g = gain.evaluate_at(ys, xs, (h, w))
+        g = interp_coarse(gain_c, ys, xs, (h, w), f)
         q = encode(linear[ys, xs] / g[:, None])
         gc = find_candidates(  # on the ~2 nm grid, refined by a parabola
             q,
@@ -443,7 +451,7 @@ def measure(
             k=MeasureSettings.k,
             intensity_weight=INTENSITY_WEIGHT_FULL,
         )
-        p = pred[ys, xs].astype(np.float64)[:, None]
+        p = interp_coarse(pred_c, ys, xs, (h, w), f)[:, None]
         score = gc.cost / noise_full + ((gc.thickness_nm - p) / (0.3 * period)) ** 2
         score = np.where(np.isfinite(score), score, np.inf)
         best = np.argmin(score, axis=1)
@@ -463,6 +471,7 @@ def measure(
         better &= ~far | (support[ys, xs] >= 3)  # itself and at least two neighbours
         thick[ys[better], xs[better]] = t_alt[better]
         cost[ys[better], xs[better]] = c_alt[better]
+        del jumped, support
 
     # ---- reasons and confidence ----------------------------------------------------
     say("reasons")
@@ -483,7 +492,7 @@ def measure(
         usable=usable,
         thickness_nm=thick,
         cost=cost,
-        predicted_nm=pred,
+        predicted_coarse_nm=pred_c,
         region_coarse=sel.region,
         factor=f,
         region_margin=sel.region_margin,
@@ -499,7 +508,7 @@ def measure(
     )
     # the full-resolution intermediates are no longer needed: free them before statistics
     # (keeps the peak memory of a 12-megapixel photo lower)
-    del thick, cost, edge, pred, usable, dark, no_film
+    del thick, cost, edge, redo, usable, dark, no_film
     gain_full_centre = float(gain.evaluate_at(np.array([h // 2]), np.array([w // 2]), (h, w))[0])
     gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 

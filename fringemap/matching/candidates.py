@@ -6,8 +6,8 @@ order. :func:`find_candidates` returns the ``K`` lowest minima per pixel,
 refined below the table step by fitting a parabola through the minimum and its
 two neighbours. It is exhaustive over the table, so the pipeline uses it on a
 downsampled image (and on the few full-resolution pixels at steps);
-:func:`fringemap.matching.fullres.fullres_match` is the full-resolution pass that looks only in a window
-around a predicted thickness.
+:func:`fringemap.matching.fullres.fullres_match` is the full-resolution pass that
+looks only near a predicted thickness.
 """
 
 from __future__ import annotations

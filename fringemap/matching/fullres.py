@@ -4,11 +4,11 @@ Per pixel, in one parallel loop over rows (numba):
 
 1. divide the linear colour by the gain field (bilinear from its coarse grid);
 2. encode it through a look-up table of the IEC 61966-2-1 transfer function;
-3. look for the best thickness within a window around the coarse map's
-   prediction (bilinear from the coarse map), on a stride of the table, then
-   refine on the full table and by a parabola through the minimum;
-4. flag pixels whose best value sits on the window's edge (the prediction was
-   off: a step, a scratch) for an exhaustive search.
+3. descend the colour distance along the table from the coarse map's
+   prediction (bilinear from the coarse map) to the nearest local minimum,
+   refined by a parabola through the minimum and its two neighbours;
+4. flag pixels whose minimum lies farther from the prediction than a window
+   (the prediction was off: a step, a scratch) for an exhaustive search.
 
 This replaces several full-size temporary arrays by one pass, which is what
 keeps a 12-megapixel photo within memory and time.
@@ -23,7 +23,7 @@ from ..colour.transfer import srgb_encode
 from .candidates import _refine
 from .space import _dist
 
-__all__ = ["ENCODE_LUT", "dark_mask", "block_mean", "fullres_match"]
+__all__ = ["ENCODE_LUT", "dark_mask", "block_mean", "fullres_match", "interp_coarse"]
 
 _LUT_MAX = 2.0
 _LUT_N = 16384
@@ -101,24 +101,28 @@ def _interp(grid, y0, y1, fy, x0, x1, fx):
     )
 
 
+@njit(cache=True, inline="always")
+def _d_at(i, q0, q1, q2, qq, e, ee, mu):
+    return _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+
+
 @njit(cache=True, parallel=True)
 def _fullres_kernel(
     linear, usable, pred_c, gain_c, ys0, ys1, fys, xs0, xs1, fxs, e, ee, lut, lam, t0, step,
-    half, stride, out_t, out_c, out_edge, out_pred,
+    half, out_t, out_c, out_edge,
 ):  # fmt: skip
     h, w = usable.shape
     n = e.shape[0]
     for y in prange(h):
         y0, y1, fy = ys0[y], ys1[y], fys[y]
         for x in range(w):
-            x0, x1, fx = xs0[x], xs1[x], fxs[x]
-            pred = _interp(pred_c, y0, y1, fy, x0, x1, fx)
-            out_pred[y, x] = pred
             if not usable[y, x]:
                 out_t[y, x] = np.nan
                 out_c[y, x] = np.inf
                 out_edge[y, x] = False
                 continue
+            x0, x1, fx = xs0[x], xs1[x], fxs[x]
+            pred = _interp(pred_c, y0, y1, fy, x0, x1, fx)
             g = _interp(gain_c, y0, y1, fy, x0, x1, fx)
             q0 = _enc(linear[y, x, 0] / g, lut)
             q1 = _enc(linear[y, x, 1] / g, lut)
@@ -126,34 +130,55 @@ def _fullres_kernel(
             qq = q0 * q0 + q1 * q1 + q2 * q2
             mu = lam * qq
             c = int(round((pred - t0) / step))
-            i0 = max(0, c - half)
-            i1 = min(n - 1, c + half)
-            best = np.inf
-            bi = i0
-            # strided scan, then the full table around the best sample
-            for i in range(i0, i1 + 1, stride):
-                d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
-                if d < best:
-                    best = d
-                    bi = i
-            j0 = max(i0, bi - stride + 1)
-            j1 = min(i1, bi + stride - 1)
-            for i in range(j0, j1 + 1):
-                if i == bi:
-                    continue
-                d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
-                if d < best:
-                    best = d
-                    bi = i
+            c = min(n - 1, max(0, c))
+            # descend the distance along the table from the predicted entry to the
+            # nearest local minimum (at most 2·half entries away)
+            best = _d_at(c, q0, q1, q2, qq, e, ee, mu)
+            dm = _d_at(c - 1, q0, q1, q2, qq, e, ee, mu) if c > 0 else np.inf
+            dp = _d_at(c + 1, q0, q1, q2, qq, e, ee, mu) if c < n - 1 else np.inf
+            bi = c
+            if dm < best and dm <= dp:
+                lo = max(0, c - 2 * half)
+                while True:
+                    dp, best, bi = best, dm, bi - 1
+                    if bi <= lo:
+                        dm = _d_at(bi - 1, q0, q1, q2, qq, e, ee, mu) if bi > 0 else np.inf
+                        break
+                    dm = _d_at(bi - 1, q0, q1, q2, qq, e, ee, mu)
+                    if dm >= best:
+                        break
+            elif dp < best:
+                hi = min(n - 1, c + 2 * half)
+                while True:
+                    dm, best, bi = best, dp, bi + 1
+                    if bi >= hi:
+                        dp = _d_at(bi + 1, q0, q1, q2, qq, e, ee, mu) if bi < n - 1 else np.inf
+                        break
+                    dp = _d_at(bi + 1, q0, q1, q2, qq, e, ee, mu)
+                    if dp >= best:
+                        break
             if 0 < bi < n - 1:
-                dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
-                dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
                 off, cost = _refine(dm, best, dp)
             else:
                 off, cost = 0.0, best
             out_t[y, x] = t0 + (bi + off) * step
             out_c[y, x] = cost
-            out_edge[y, x] = (bi <= i0 + 1 and i0 > 0) or (bi >= i1 - 1 and i1 < n - 1)
+            # far from the prediction: a step or a scratch the coarse map smoothed over
+            out_edge[y, x] = abs(bi - c) >= half
+
+
+def interp_coarse(grid: np.ndarray, ys: np.ndarray, xs: np.ndarray, shape, factor: int):
+    """A coarse map (block size ``factor`` px) bilinearly interpolated at full-resolution
+    pixels (``ys``, ``xs``) of a photo of ``shape`` (H, W); float64, same as the kernel."""
+    gy0, gy1, fy = (a[ys] for a in _axis_weights(shape[0], grid.shape[0], int(factor)))
+    gx0, gx1, fx = (a[xs] for a in _axis_weights(shape[1], grid.shape[1], int(factor)))
+    g = np.asarray(grid, dtype=np.float64)
+    return (
+        g[gy0, gx0] * (1 - fy) * (1 - fx)
+        + g[gy0, gx1] * (1 - fy) * fx
+        + g[gy1, gx0] * fy * (1 - fx)
+        + g[gy1, gx1] * fy * fx
+    )
 
 
 def fullres_match(
@@ -186,23 +211,24 @@ def fullres_match(
     table_encoded : ndarray (N, 3)
         Encoded colour table on a regular grid (``t0_nm``, ``step_nm``).
     window_nm : float
-        Half-width of the search window around the prediction (nm).
+        Distance from the prediction (nm) beyond which a pixel is flagged
+        ``at_edge``; the descent stops at twice this distance.
     intensity_weight : float
         λ of the colour distance.
 
     Returns
     -------
-    thickness_nm, cost, at_edge, predicted_nm : ndarrays (H, W)
+    thickness_nm, cost, at_edge : ndarrays (H, W)
+        Thickness (nm, float32, NaN where not usable), colour cost (float32,
+        inf where not usable) and the far-from-prediction flag (bool).
     """
     h, w = usable.shape
     e = np.ascontiguousarray(table_encoded, dtype=np.float64)
     ee = np.sum(e * e, axis=1)
     half = max(2, int(np.ceil(window_nm / step_nm)))
-    stride = max(1, int(round(2.0 / step_nm)))
     out_t = np.empty((h, w), dtype=np.float32)
     out_c = np.empty((h, w), dtype=np.float32)
     out_edge = np.empty((h, w), dtype=np.bool_)
-    out_pred = np.empty((h, w), dtype=np.float32)
     pred_c = np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64)
     ys = _axis_weights(h, pred_c.shape[0], int(factor))
     xs = _axis_weights(w, pred_c.shape[1], int(factor))
@@ -220,10 +246,8 @@ def fullres_match(
         float(t0_nm),
         float(step_nm),
         half,
-        stride,
         out_t,
         out_c,
         out_edge,
-        out_pred,
     )
-    return out_t, out_c, out_edge, out_pred
+    return out_t, out_c, out_edge

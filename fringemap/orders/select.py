@@ -143,27 +143,55 @@ def _predict(p, h, w, state_t, assigned):
 
 @njit(cache=True)
 def _local_min(p, pred, q, e, ee, lam, t0, step, half, noise):
-    """Best thickness near ``pred`` on the table (window ±half entries): (t, normalised cost)."""
+    """The local minimum of the distance nearest ``pred`` on the table, found by descent
+    from the predicted entry (at most ``half`` entries away): (t, normalised cost)."""
     n = e.shape[0]
     q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
     qq = q0 * q0 + q1 * q1 + q2 * q2
     mu = lam * qq
     c = int(round((pred - t0) / step))
-    i0 = max(0, c - half)
-    i1 = min(n - 1, c + half)
-    if i1 < i0:
-        return np.nan, np.inf
-    best = np.inf
-    bi = i0
-    for i in range(i0, i1 + 1):
-        d = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
-        if d < best:
-            best = d
-            bi = i
+    if c < 0 or c > n - 1:
+        if c < -half or c > n - 1 + half:
+            return np.nan, np.inf
+        c = min(n - 1, max(0, c))
+    best = _dist(q0, q1, q2, qq, e[c, 0], e[c, 1], e[c, 2], ee[c], mu)
+    dm = np.inf
+    dp = np.inf
+    if c > 0:
+        dm = _dist(q0, q1, q2, qq, e[c - 1, 0], e[c - 1, 1], e[c - 1, 2], ee[c - 1], mu)
+    if c < n - 1:
+        dp = _dist(q0, q1, q2, qq, e[c + 1, 0], e[c + 1, 1], e[c + 1, 2], ee[c + 1], mu)
+    bi = c
+    if dm < best and dm <= dp:
+        lo = max(0, c - half)
+        while True:
+            dp, best, bi = best, dm, bi - 1
+            if bi <= lo:
+                dm = np.inf
+                if bi > 0:
+                    j = bi - 1
+                    dm = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
+                break
+            j = bi - 1
+            dm = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
+            if dm >= best:
+                break
+    elif dp < best:
+        hi = min(n - 1, c + half)
+        while True:
+            dm, best, bi = best, dp, bi + 1
+            if bi >= hi:
+                dp = np.inf
+                if bi < n - 1:
+                    j = bi + 1
+                    dp = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
+                break
+            j = bi + 1
+            dp = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
+            if dp >= best:
+                break
     off = 0.0
     if 0 < bi < n - 1:
-        dm = _dist(q0, q1, q2, qq, e[bi - 1, 0], e[bi - 1, 1], e[bi - 1, 2], ee[bi - 1], mu)
-        dp = _dist(q0, q1, q2, qq, e[bi + 1, 0], e[bi + 1, 1], e[bi + 1, 2], ee[bi + 1], mu)
         off, best = _refine(dm, best, dp)
     return t0 + (bi + off) * step, best / noise
 
@@ -173,7 +201,7 @@ def _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm):
     """The cheapest continuation at pixel p: (thickness, cost, score); score inf if none.
 
     Candidates are the pixel's precomputed local minima and, when the table is
-    given (``lm``), the best thickness in a window around the prediction — so the
+    given (``lm``), the local minimum nearest the prediction (by descent) — so the
     growth can follow a branch whose minimum is shallow or shifted by a colour
     mismatch, instead of jumping to another order.
     """
@@ -429,9 +457,10 @@ def select_orders(
         Points of known thickness, in this grid's pixel coordinates.
     colours, table_encoded : ndarray (H, W, 3) and (N, 3), optional
         Encoded pixel colours and colour table (on the grid ``t0_nm``,
-        ``step_nm``). When given, growth also considers the best thickness
-        within a quarter order of each pixel's prediction (distance with
-        ``intensity_weight``, cost divided by ``noise``).
+        ``step_nm``). When given, growth also considers the local minimum of
+        the distance nearest each pixel's prediction, found by descent within
+        a quarter order (distance with ``intensity_weight``, cost divided by
+        ``noise``).
     """
     h, w, k = cand_t.shape
     ct = np.ascontiguousarray(cand_t.reshape(h * w, k), dtype=np.float64)
