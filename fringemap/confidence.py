@@ -91,11 +91,7 @@ def _classify_kernel(
             if i > n - 1:
                 i = n - 1
             pred = _interp(pred_c, ys0[y], ys1[y], fys[y], xs0[x], xs1[x], fxs[x])
-            if (
-                faded[i]
-                or pred >= t_faded - 0.5 * step
-                or (t >= t_max - 2 * step and t_max > t0)
-            ):
+            if faded[i] or pred >= t_faded - 0.5 * step or (t >= t_max - 2 * step and t_max > t0):
                 out_r[y, x] = BEYOND
                 continue
             cy = min(hc - 1, y // f)
