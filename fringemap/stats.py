@@ -17,6 +17,7 @@ import re
 from dataclasses import dataclass, fields
 
 import numpy as np
+from numba import njit
 
 from fringemap._maps import as_map, json_value, region
 from fringemap.errors import OptionError
@@ -152,6 +153,109 @@ class UniformityStats:
         return {f.name: json_value(getattr(self, f.name)) for f in fields(self)}
 
 
+# ------------------------------------------- exact order statistics of float32 maps
+#
+# A two-pass radix selection: float32 values map to unsigned keys that sort as
+# the values do; the first pass counts the keys' upper 16 bits (and the count,
+# sum, min and max), the second the lower 16 bits inside the few upper bins that
+# hold a wanted rank (and the squared deviations from the mean). The ranks'
+# values are then exact, without copying or partially sorting the values:
+# percentiles of a 12-megapixel map in a few hundredths of a second.
+
+
+@njit(cache=True)
+def _sort_key(bits):
+    if bits & np.uint32(0x80000000):
+        return ~bits
+    return bits | np.uint32(0x80000000)
+
+
+@njit(cache=True)
+def _key_value(key):
+    if key & np.uint32(0x80000000):
+        bits = key & np.uint32(0x7FFFFFFF)
+    else:
+        bits = ~key
+    return np.array([bits], dtype=np.uint32).view(np.float32)[0]
+
+
+@njit(cache=True)
+def _first_pass(t, bits, area, upper):
+    count = 0
+    total = 0.0
+    lo = np.inf
+    hi = -np.inf
+    for i in range(t.shape[0]):
+        v = t[i]
+        if not area[i] or not np.isfinite(v):
+            continue
+        count += 1
+        total += v
+        lo = min(lo, v)
+        hi = max(hi, v)
+        upper[_sort_key(bits[i]) >> 16] += 1
+    return count, total, lo, hi
+
+
+@njit(cache=True)
+def _second_pass(t, bits, area, mean, slot, lower):
+    ss = 0.0
+    for i in range(t.shape[0]):
+        v = t[i]
+        if not area[i] or not np.isfinite(v):
+            continue
+        d = v - mean
+        ss += d * d
+        key = _sort_key(bits[i])
+        s = slot[key >> 16]
+        if s >= 0:
+            lower[s, key & 0xFFFF] += 1
+    return ss
+
+
+@njit(cache=True)
+def _rank_values(ranks, upper, slot, lower):
+    cum_upper = np.cumsum(upper)
+    out = np.empty(ranks.shape[0])
+    for j in range(ranks.shape[0]):
+        r = ranks[j]
+        b = np.searchsorted(cum_upper, r, side="right")
+        before = cum_upper[b - 1] if b > 0 else 0
+        cum_lower = np.cumsum(lower[slot[b]])
+        low = np.searchsorted(cum_lower, r - before, side="right")
+        out[j] = _key_value(np.uint32((b << 16) | low))
+    return out
+
+
+def _float32_moments(t: np.ndarray, area: np.ndarray, qs: np.ndarray):
+    """count, mean, std (ddof 0), min, max and percentiles ``qs`` (numpy's linear rule)."""
+    flat = np.ascontiguousarray(t).reshape(-1)
+    bits = flat.view(np.uint32)
+    region_flat = np.ascontiguousarray(area).reshape(-1)
+    upper = np.zeros(1 << 16, dtype=np.int64)
+    count, total, lo, hi = _first_pass(flat, bits, region_flat, upper)
+    if count == 0:
+        return 0, math.nan, math.nan, math.nan, math.nan, np.full(qs.shape, math.nan)
+    mean = total / count
+    # ranks around each percentile's virtual index (numpy: q/100 · (n − 1))
+    virtual = qs / 100.0 * (count - 1)
+    below = np.floor(virtual).astype(np.int64)
+    above = np.minimum(below + 1, count - 1)
+    ranks = np.concatenate([below, above])
+    cum_upper = np.cumsum(upper)
+    bins = np.unique(np.searchsorted(cum_upper, ranks, side="right"))
+    slot = np.full(1 << 16, -1, dtype=np.int64)
+    slot[bins] = np.arange(bins.size)
+    lower = np.zeros((bins.size, 1 << 16), dtype=np.int64)
+    ss = _second_pass(flat, bits, region_flat, mean, slot, lower)
+    values = _rank_values(ranks, upper, slot, lower)
+    a, b = values[: qs.size], values[qs.size :]
+    frac = virtual - below
+    # numpy's interpolation, evaluated from the nearer end
+    pct = np.where(frac >= 0.5, b - (b - a) * (1 - frac), a + (b - a) * frac)
+    return count, mean, math.sqrt(ss / count), lo, hi, pct
+
+
 def _percent_of_mean(numerator: float, mean: float, factor: float = 1.0) -> float:
     if not math.isfinite(mean) or mean == 0:
         return math.nan
@@ -199,23 +303,31 @@ def uniformity(
         )
     t = as_map(thickness_nm)
     area = region(t, mask)
-    values = t[area & np.isfinite(t)]
-    count = int(values.size)
     region_px = int(np.count_nonzero(area))
-    coverage = count / region_px if region_px else 0.0
-    if count:
-        mean = float(values.mean(dtype=np.float64))
-        dev = values - values.dtype.type(mean)
-        std = float(np.sqrt(np.einsum("i,i->", dev, dev, dtype=np.float64) / count))
-        lo, hi = float(values.min()), float(values.max())
-        p1, p5, p50, p95, p99 = (float(v) for v in np.percentile(values, [1, 5, 50, 95, 99]))
+    qs = np.array([1.0, 5.0, 50.0, 95.0, 99.0])
+    if t.dtype == np.float32:
+        count, mean, std, lo, hi, pct = _float32_moments(t, area, qs)
     else:
-        mean = std = lo = hi = p1 = p5 = p50 = p95 = p99 = math.nan
+        values = t[area & np.isfinite(t)]
+        count = int(values.size)
+        if count:
+            mean = float(values.mean(dtype=np.float64))
+            dev = values - mean
+            std = float(np.sqrt(np.einsum("i,i->", dev, dev) / count))
+            lo, hi = float(values.min()), float(values.max())
+            pct = np.percentile(values, qs)
+        else:
+            mean = std = lo = hi = math.nan
+            pct = np.full(qs.shape, math.nan)
+    p1, p5, p50, p95, p99 = (float(v) for v in pct)
+    lo, hi, mean, std = float(lo), float(hi), float(mean), float(std)
+    coverage = count / region_px if region_px else 0.0
     spec_fields: dict = {}
     if spec is not None:
         if count:
-            in_spec = float(np.count_nonzero(np.abs(values - spec.target_nm) <= spec.tol_nm))
-            fraction = in_spec / count
+            with np.errstate(invalid="ignore"):
+                inside = np.abs(t - spec.target_nm) <= spec.tol_nm
+            fraction = float(np.count_nonzero(inside & area)) / count
             passed = fraction >= required_fraction
         else:
             fraction, passed = math.nan, False

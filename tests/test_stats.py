@@ -398,3 +398,30 @@ def test_plane_fit_degenerate():
     assert fit.count_px == 5 and math.isnan(fit.slope_x_nm_per_mm)
     json.dumps(fit.to_dict(), allow_nan=False)
     assert plane_fit(np.full((3, 3), np.nan), scale=Scale(1.0)).count_px == 0
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    hnp.arrays(
+        np.float32,
+        st.tuples(st.integers(1, 30), st.integers(1, 30)),
+        elements=st.floats(-1e4, 1e4, width=32) | st.just(np.float32(np.nan)),
+    ),
+    st.integers(0, 2**32 - 1),
+)
+def test_float32_maps_match_numpy(t, seed):
+    # independent computation: numpy's percentile (linear rule), mean, std and extremes on
+    # the measured values of a float32 map (the pipeline's maps take a radix-selection path)
+    mask = np.random.default_rng(seed).random(t.shape) < 0.8
+    result = uniformity(t, mask=mask)
+    values = t[mask & np.isfinite(t)].astype(np.float64)
+    assert result.count_px == values.size
+    if not values.size:
+        assert math.isnan(result.median_nm)
+        return
+    want = np.percentile(values, [1, 5, 50, 95, 99])
+    got = [result.p1_nm, result.p5_nm, result.median_nm, result.p95_nm, result.p99_nm]
+    np.testing.assert_allclose(got, want, rtol=1e-9, atol=1e-9)
+    assert result.min_nm == values.min() and result.max_nm == values.max()
+    assert result.mean_nm == pytest.approx(values.mean(), rel=1e-9, abs=1e-9)
+    assert result.std_nm == pytest.approx(values.std(), rel=1e-6, abs=1e-6)

@@ -17,8 +17,6 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, prange
 
-from .space import _dist
-
 __all__ = ["Candidates", "find_candidates"]
 
 
@@ -54,21 +52,33 @@ def _refine(dm, d0, dp):
 @njit(cache=True, parallel=True)
 def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
     n = e.shape[0]
-    for p in prange(q.shape[0]):
-        q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
-        qq = q0 * q0 + q1 * q1 + q2 * q2
-        mu = lam * qq
-        for j in range(k):
-            out_t[p, j] = np.nan
-            out_c[p, j] = np.inf
-        dm = np.inf
-        d0 = _dist(q0, q1, q2, qq, e[0, 0], e[0, 1], e[0, 2], ee[0], mu)
-        for i in range(n):
-            if i + 1 < n:
-                dp = _dist(q0, q1, q2, qq, e[i + 1, 0], e[i + 1, 1], e[i + 1, 2], ee[i + 1], mu)
-            else:
-                dp = np.inf
-            if d0 <= dm and d0 < dp:
+    n_px = q.shape[0]
+    chunk = 256
+    e0 = e[:, 0].copy()
+    e1 = e[:, 1].copy()
+    e2 = e[:, 2].copy()
+    for ch in prange((n_px + chunk - 1) // chunk):
+        d = np.empty(n)  # one distance buffer per chunk of pixels
+        for p in range(ch * chunk, min(n_px, ch * chunk + chunk)):
+            q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
+            qq = q0 * q0 + q1 * q1 + q2 * q2
+            mu = lam * qq
+            inv = 1.0 / (qq + mu)
+            # the distance to every entry (the same formula as _dist, in a loop the
+            # compiler can vectorise)
+            for i in range(n):
+                qe = q0 * e0[i] + q1 * e1[i] + q2 * e2[i]
+                s = (qe + mu) * inv
+                d[i] = ee[i] - 2.0 * s * qe + s * s * qq + mu * (s - 1.0) * (s - 1.0)
+            for j in range(k):
+                out_t[p, j] = np.nan
+                out_c[p, j] = np.inf
+            for i in range(n):
+                d0 = d[i]
+                dm = d[i - 1] if i > 0 else np.inf
+                dp = d[i + 1] if i + 1 < n else np.inf
+                if not (d0 <= dm and d0 < dp):
+                    continue
                 if i == 0 or i == n - 1:
                     off, c = 0.0, d0
                 else:
@@ -82,8 +92,6 @@ def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
                         j -= 1
                     out_c[p, j] = c
                     out_t[p, j] = t0 + (i + off) * step
-            dm = d0
-            d0 = dp
 
 
 def find_candidates(

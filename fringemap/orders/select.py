@@ -72,6 +72,11 @@ class OrderSelection:
     region_seed: np.ndarray
 
 
+#: order margins (cost per pixel) above this are all "sure"; hypotheses that far behind
+#: are not grown to the end, and the margin is reported as this value
+MARGIN_CAP = 100.0
+
+
 # --- a small binary heap on parallel arrays (numba has no priority queue of tuples) ---
 
 
@@ -237,13 +242,44 @@ def _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm):
 
 
 @njit(cache=True)
+def _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo):
+    """:func:`_best_choice`, remembered per pixel for the last prediction asked."""
+    if memo[p, 0] == pred:
+        return memo[p, 1], memo[p, 2], memo[p, 3]
+    t, c, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm)
+    memo[p, 0] = pred
+    memo[p, 1] = t
+    memo[p, 2] = c
+    memo[p, 3] = score
+    return t, c, score
+
+
+@njit(cache=True)
 def _grow(
-    seed_p, seed_t, seed_c, allowed, cand_t, cand_c, h, w, tau, max_jump, lm, out_t, out_c, assigned
+    seed_p,
+    seed_t,
+    seed_c,
+    allowed,
+    cand_t,
+    cand_c,
+    h,
+    w,
+    tau,
+    max_jump,
+    lm,
+    out_t,
+    out_c,
+    assigned,
+    abort_cost,
 ):
-    """Grow from a seed over pixels with allowed[p]; returns pixels assigned, cost sum."""
+    """Grow from a seed over pixels with allowed[p]: (pixels assigned, cost sum, stopped).
+
+    Growth stops early (``stopped``) once the cost sum exceeds ``abort_cost``.
+    """
     n = h * w
     keys = np.empty(4 * n + 4)
     vals = np.empty(4 * n + 4, dtype=np.int64)
+    memo = np.full((n, 4), np.nan)
     size = 0
     out_t[seed_p] = seed_t
     out_c[seed_p] = seed_c
@@ -251,14 +287,28 @@ def _grow(
     count = 1
     cost_sum = seed_c
     size = _push_neighbours(
-        seed_p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
+        seed_p,
+        h,
+        w,
+        allowed,
+        assigned,
+        keys,
+        vals,
+        size,
+        cand_t,
+        cand_c,
+        out_t,
+        tau,
+        max_jump,
+        lm,
+        memo,
     )
     while size > 0:
         key, p, size = _heap_pop(keys, vals, size)
         if assigned[p]:
             continue
         pred = _predict(p, h, w, out_t, assigned)
-        t, c, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm)
+        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo)
         if not np.isfinite(score):
             continue  # may be reached again from another side
         if score > key + 1e-12:
@@ -271,15 +321,31 @@ def _grow(
         assigned[p] = True
         count += 1
         cost_sum += c
+        if cost_sum > abort_cost:
+            return count, cost_sum, True
         size = _push_neighbours(
-            p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
+            p,
+            h,
+            w,
+            allowed,
+            assigned,
+            keys,
+            vals,
+            size,
+            cand_t,
+            cand_c,
+            out_t,
+            tau,
+            max_jump,
+            lm,
+            memo,
         )
-    return count, cost_sum
+    return count, cost_sum, False
 
 
 @njit(cache=True)
 def _push_neighbours(
-    p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm
+    p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm, memo
 ):
     y, x = p // w, p % w
     for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
@@ -290,7 +356,7 @@ def _push_neighbours(
         if assigned[q] or not allowed[q]:
             continue
         pred = _predict(q, h, w, out_t, assigned)
-        t, c, score = _best_choice(q, pred, cand_t, cand_c, tau, max_jump, lm)
+        t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, memo)
         if not np.isfinite(score) or size >= keys.shape[0]:
             continue
         size = _heap_push(keys, vals, size, score, q)
@@ -354,6 +420,7 @@ def _select_all(
             out_t,
             out_c,
             assigned,
+            np.inf,
         )
         members = assigned & ~before
         for p in range(n):
@@ -370,6 +437,7 @@ def _select_all(
                     base_cost += out_c[p]
             best_cost = base_cost
             second = np.inf
+            capped = False
             best_t = np.empty(0)
             best_c = np.empty(0)
             for k in range(kk):
@@ -378,7 +446,11 @@ def _select_all(
                 ht = np.full(n, np.nan)
                 hc = np.full(n, np.inf)
                 ha = ~members
-                cnt, csum = _grow(
+                # a hypothesis whose partial cost already exceeds the second best can
+                # be neither best nor second (costs are not negative), and one that
+                # exceeds the best by MARGIN_CAP per pixel only says "sure": stop it
+                bound = min(second, best_cost + MARGIN_CAP * sizes[r])
+                cnt, csum, stopped = _grow(
                     s,
                     cand_t[s, k],
                     cand_c[s, k],
@@ -393,7 +465,11 @@ def _select_all(
                     ht,
                     hc,
                     ha,
+                    bound,
                 )
+                if stopped:
+                    capped |= bound < second
+                    continue
                 # a hypothesis that merges back into the chosen labelling is no alternative
                 differ = 0
                 for p in range(n):
@@ -416,6 +492,8 @@ def _select_all(
                         out_t[p] = best_t[p]
                         out_c[p] = best_c[p]
             margins[r] = (second - best_cost) / sizes[r] if np.isfinite(second) else 1e9
+            if capped:
+                margins[r] = min(margins[r], MARGIN_CAP)
         else:
             margins[r] = 1e9 if is_anchor else 0.0
         r += 1
