@@ -10,7 +10,7 @@ reason code (:data:`fringemap.result.REASONS`) and a confidence in 0-1::
 with σ² the per-channel noise variance of the colour match, σ_t = σ / |de/dt|
 the thickness noise implied by the colour's rate of change at that thickness,
 and ``margin`` the per-pixel cost gap between the chosen order hypothesis of
-the pixel's region and the next best.
+the pixel's region and the next best. It is rounded to steps of 1/1024.
 """
 
 from __future__ import annotations
@@ -22,10 +22,13 @@ from .matching.fullres import _axis_weights, _interp
 
 __all__ = ["classify"]
 
+#: the confidence is stored in steps of 1 / CONF_STEPS
+CONF_STEPS = 1024.0
+
 MEASURED, OUTSIDE, NO_FILM, SATURATED, TOO_DARK, OFF_MODEL, AMBIGUOUS, BEYOND = range(8)
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def _classify_kernel(
     roi,
     dark,
@@ -109,7 +112,9 @@ def _classify_kernel(
             m = 0.5 + margin / 4.0
             if m > 1.0:
                 m = 1.0
-            cost[y, x] = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
+            conf = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
+            # in steps of 1/1024: finer than it can mean, and the map compresses well
+            cost[y, x] = np.round(conf * CONF_STEPS) / CONF_STEPS
 
 
 def classify(

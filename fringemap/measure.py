@@ -22,7 +22,6 @@ from pathlib import Path
 
 import cv2
 import numpy as np
-from scipy import ndimage
 
 from . import __version__
 from .colour.table import ColourTable, order_marks_nm
@@ -30,7 +29,7 @@ from .colour.transfer import srgb_decode
 from .confidence import classify
 from .errors import MeasurementError, OptionError
 from .matching.candidates import find_candidates
-from .matching.fullres import block_mean, dark_mask, fullres_match, interp_coarse
+from .matching.fullres import block_mean, dark_mask, fill_nearest, fullres_match, interp_coarse
 from .matching.gain import fit_gain_field
 from .matching.space import INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL, encode
 from .orders.select import select_orders
@@ -88,6 +87,13 @@ def _gain_samples(linear, t, table: ColourTable):
     return g, cc
 
 
+def _running(values: np.ndarray, n: int) -> np.ndarray:
+    """Windows of ``n`` samples centred on each sample of a 1-D array (edges repeated),
+    shape (len, n): the window of sample i spans i - n//2 ... i - n//2 + n - 1."""
+    padded = np.pad(values, (n // 2, (n - 1) // 2), mode="edge")
+    return np.lib.stride_tricks.sliding_window_view(padded, n)
+
+
 def _faded_mask(
     table: ColourTable,
     e_tab: np.ndarray,
@@ -104,9 +110,9 @@ def _faded_mask(
     thickness by more than ``max_sigma_nm``: ``noise / mean|de/dt| > max_sigma``.
     """
     n = max(3, int(round(period_nm / table.step_nm)))
-    chroma = ndimage.maximum_filter1d(table.chroma, size=n, mode="nearest")
+    chroma = _running(table.chroma, n).max(axis=1)
     slope = np.sqrt(np.sum(np.gradient(e_tab, table.step_nm, axis=0) ** 2, axis=1))
-    slope_env = ndimage.uniform_filter1d(slope, size=n, mode="nearest")
+    slope_env = _running(slope, n).mean(axis=1)
     faded = (chroma < threshold) | (noise_rms / np.maximum(slope_env, 1e-12) > max_sigma_nm)
     # only the thick end counts as "faded": thin films are legitimately grey
     first_colour = np.argmax(table.chroma > 2 * threshold)
@@ -406,12 +412,7 @@ def measure(
 
     # ---- full resolution -----------------------------------------------------------
     say("full resolution")
-    filled = sel.thickness_nm.copy()
-    if np.isnan(filled).any() and np.isfinite(filled).any():
-        idx = ndimage.distance_transform_edt(
-            np.isnan(filled), return_distances=False, return_indices=True
-        )
-        filled = filled[tuple(idx)]
+    filled = fill_nearest(sel.thickness_nm)
     pred_c = np.nan_to_num(filled, nan=t0)
     thick, cost, edge = fullres_match(
         linear,

@@ -24,7 +24,6 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
-from scipy import ndimage
 
 from fringemap.errors import InputFileError, OptionError
 
@@ -328,6 +327,8 @@ def edge_exclusion_mask(mask: np.ndarray, *, exclusion_px: float) -> np.ndarray:
         raise OptionError(f"expected a 2-D mask, got shape {region.shape}", where=where)
     if exclusion_px == 0 or not region.any():
         return region.copy()
+    from scipy import ndimage  # only here: keeps start-up light
+
     distance = ndimage.distance_transform_edt(np.pad(region, 1))[1:-1, 1:-1]
     kept = distance > exclusion_px
     if not kept.any():

@@ -179,7 +179,7 @@ def _key_value(key):
     return np.array([bits], dtype=np.uint32).view(np.float32)[0]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _first_pass(t, bits, area, upper):
     count = 0
     total = 0.0
@@ -197,7 +197,7 @@ def _first_pass(t, bits, area, upper):
     return count, total, lo, hi
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _second_pass(t, bits, area, mean, slot, lower):
     ss = 0.0
     for i in range(t.shape[0]):

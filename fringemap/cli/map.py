@@ -10,6 +10,9 @@ from .report_options import add_report_options
 
 
 def cmd_map(args) -> int:
+    from .. import _prefetch
+
+    _prefetch.start()
     from ..io.write import check_no_clash, check_output_dir
     from ..job import MapJob, load_camera_for, run_job
     from ..report.analysis import optional_output_paths

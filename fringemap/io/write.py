@@ -289,8 +289,9 @@ def _write_tiff(path: str | os.PathLike[str], values: np.ndarray, description: d
         tifffile.imwrite(
             temporary,
             values,
-            # zlib at its fastest level: float maps barely compress harder, and level 6
-            # costs seconds per 12-megapixel map
+            # deflate at its fastest level (imagecodecs' encoder): float maps barely
+            # compress harder, and level 6 costs seconds per 12-megapixel map. No
+            # predictor: any TIFF reader with deflate opens the files
             compression="zlib",
             compressionargs={"level": 1},
             maxworkers=2,

@@ -49,7 +49,7 @@ def _refine(dm, d0, dp):
     return off, d0 - 0.25 * (dm - dp) * off
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
     n = e.shape[0]
     n_px = q.shape[0]

@@ -23,7 +23,14 @@ from ..colour.transfer import srgb_encode
 from .candidates import _refine
 from .space import _dist
 
-__all__ = ["ENCODE_LUT", "dark_mask", "block_mean", "fullres_match", "interp_coarse"]
+__all__ = [
+    "ENCODE_LUT",
+    "dark_mask",
+    "block_mean",
+    "fill_nearest",
+    "fullres_match",
+    "interp_coarse",
+]
 
 _LUT_MAX = 2.0
 _LUT_N = 16384
@@ -43,7 +50,7 @@ def _enc(x, lut):
     return lut[i] * (1.0 - fr) + lut[i + 1] * fr
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def dark_mask(linear, threshold):
     """Pixels whose linear luminance (Rec. 709 weights) is below ``threshold``."""
     h, w = linear.shape[0], linear.shape[1]
@@ -55,7 +62,7 @@ def dark_mask(linear, threshold):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def block_mean(linear, usable, f):
     """Means of usable pixels over f×f blocks: (hc, wc, 3) and usable fraction (hc, wc)."""
     h, w = usable.shape
@@ -83,6 +90,59 @@ def block_mean(linear, usable, f):
     return mean, frac
 
 
+@njit(cache=True)
+def _nearest_seeds(valid):
+    """Per pixel, the coordinates of a nearest ``valid`` pixel (Euclidean), by two
+    raster sweeps that pass nearest-seed coordinates between 8-neighbours (a
+    vector distance transform after Danielsson, Comput. Graph. Image Process.
+    14, 227 (1980)); -1 where there is no valid pixel at all."""
+    h, w = valid.shape
+    sy = np.full((h, w), -1, dtype=np.int64)
+    sx = np.full((h, w), -1, dtype=np.int64)
+    d2 = np.full((h, w), np.inf)
+    for y in range(h):
+        for x in range(w):
+            if valid[y, x]:
+                sy[y, x] = y
+                sx[y, x] = x
+                d2[y, x] = 0.0
+    for _ in range(2):
+        for y in range(h):  # forward: from the row above and the left
+            for x in range(w):
+                for dy, dx in ((-1, -1), (-1, 0), (-1, 1), (0, -1)):
+                    y1, x1 = y + dy, x + dx
+                    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
+                        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
+                        if dd < d2[y, x]:
+                            d2[y, x] = dd
+                            sy[y, x] = sy[y1, x1]
+                            sx[y, x] = sx[y1, x1]
+        for y in range(h - 1, -1, -1):  # backward: from the row below and the right
+            for x in range(w - 1, -1, -1):
+                for dy, dx in ((1, 1), (1, 0), (1, -1), (0, 1)):
+                    y1, x1 = y + dy, x + dx
+                    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
+                        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
+                        if dd < d2[y, x]:
+                            d2[y, x] = dd
+                            sy[y, x] = sy[y1, x1]
+                            sx[y, x] = sx[y1, x1]
+    return sy, sx
+
+
+def fill_nearest(values: np.ndarray) -> np.ndarray:
+    """A 2-D map with each NaN replaced by the value of a nearest finite pixel.
+
+    Returns a copy; a map with no finite value comes back unchanged (all NaN).
+    """
+    values = np.asarray(values)
+    finite = np.isfinite(values)
+    if finite.all() or not finite.any():
+        return values.copy()
+    sy, sx = _nearest_seeds(finite)
+    return values[sy, sx]
+
+
 def _axis_weights(n_full: int, n_coarse: int, f: int):
     """Bilinear interpolation indices and weights from a coarse axis to a full one."""
     g = np.clip((np.arange(n_full) + 0.5) / f - 0.5, 0.0, n_coarse - 1.0)
@@ -106,7 +166,7 @@ def _d_at(i, q0, q1, q2, qq, e, ee, mu):
     return _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def _fullres_kernel(
     linear, usable, pred_c, gain_c, ys0, ys1, fys, xs0, xs1, fxs, e, ee, lut, lam, t0, step,
     half, out_t, out_c, out_edge,

@@ -363,7 +363,7 @@ def _push_neighbours(
     return size
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _select_all(
     cand_t,
     cand_c,

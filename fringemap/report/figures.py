@@ -35,6 +35,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
+from numba import njit, prange
 
 from .. import __version__
 from ..errors import FringemapError, OptionError, OutputError
@@ -143,34 +144,34 @@ def block_mean(values: np.ndarray, factor: int) -> np.ndarray:
     -------
     ndarray of shape (ceil(H / factor), ceil(W / factor)), float32
     """
-    a = np.array(values, dtype=np.float32)  # a copy: zeroed in place below
+    a = np.asarray(values)
+    if a.dtype not in (np.float32, np.float64):
+        a = a.astype(np.float32)
     k = int(factor)
     if k <= 1:
-        return a
-    finite = np.isfinite(a)
-    np.copyto(a, 0.0, where=~finite)
-    ones = finite.view(np.uint8)
+        return a.astype(np.float32)
+    return _block_nanmean(np.ascontiguousarray(a), k)
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def _block_nanmean(a, k):
     h, w = a.shape
-    # sums over strided views (k adds of whole planes) are much faster than a
-    # reshape-and-sum over short axes
-    col_sum = a[:, 0::k].copy()
-    col_n = ones[:, 0::k].astype(np.uint16)
-    for i in range(1, k):
-        n = a[:, i::k].shape[1]
-        col_sum[:, :n] += a[:, i::k]
-        col_n[:, :n] += ones[:, i::k]
-    total = col_sum[0::k].copy()
-    count = col_n[0::k].copy()
-    for i in range(1, k):
-        n = col_sum[i::k].shape[0]
-        total[:n] += col_sum[i::k]
-        count[:n] += col_n[i::k]
-    rows = np.minimum(k, h - k * np.arange(total.shape[0]))
-    cols = np.minimum(k, w - k * np.arange(total.shape[1]))
-    real = rows[:, None] * cols[None, :]
-    keep = (2 * count.astype(np.int64) >= real) & (count > 0)
-    out = np.full(total.shape, np.nan, dtype=np.float32)
-    out[keep] = total[keep] / count[keep]
+    hc, wc = -(-h // k), -(-w // k)
+    out = np.empty((hc, wc), dtype=np.float32)
+    for by in prange(hc):
+        y1 = min(h, by * k + k)
+        for bx in range(wc):
+            x1 = min(w, bx * k + k)
+            total = 0.0
+            count = 0
+            for y in range(by * k, y1):
+                for x in range(bx * k, x1):
+                    v = a[y, x]
+                    if np.isfinite(v):
+                        total += v
+                        count += 1
+            real = (y1 - by * k) * (x1 - bx * k)
+            out[by, bx] = total / count if count > 0 and 2 * count >= real else np.nan
     return out
 
 

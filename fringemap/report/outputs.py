@@ -17,6 +17,7 @@ when all of them are complete, so a failure leaves no partial output.
 from __future__ import annotations
 
 import contextlib
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -101,24 +102,31 @@ def write_map_outputs(
     paths.update(optional_output_paths(analysis.settings, out_dir, stem, include_report=False))
     with contextlib.ExitStack() as stack:
         tmp = {kind: stack.enter_context(atomic_path(p)) for kind, p in paths.items()}
-        write_float_tiff(
-            tmp["thickness"],
-            result.thickness_nm.astype(np.float32),
-            description=_description(result, "film thickness", "nm"),
-        )
-        write_float_tiff(
-            tmp["confidence"],
-            result.confidence.astype(np.float32),
-            description=_description(result, "confidence", "1 (0-1)"),
-        )
-        write_uint8_tiff(
-            tmp["reasons"],
-            result.reasons.astype(np.uint8),
-            description={
-                **_description(result, "reason codes", "code"),
-                "codes": {str(k): v for k, v in REASONS.items()},
-            },
-        )
+
+        def write_tiffs():
+            write_float_tiff(
+                tmp["thickness"],
+                result.thickness_nm.astype(np.float32, copy=False),
+                description=_description(result, "film thickness", "nm"),
+            )
+            write_float_tiff(
+                tmp["confidence"],
+                result.confidence.astype(np.float32, copy=False),
+                description=_description(result, "confidence", "1 (0-1)"),
+            )
+            write_uint8_tiff(
+                tmp["reasons"],
+                result.reasons.astype(np.uint8, copy=False),
+                description={
+                    **_description(result, "reason codes", "code"),
+                    "codes": {str(k): v for k, v in REASONS.items()},
+                },
+            )
+
+        # the TIFFs compress (outside the GIL) while the figure is drawn; an error in
+        # either is raised here, and the ExitStack then removes every temporary file
+        pool = stack.enter_context(ThreadPoolExecutor(max_workers=1))
+        tiffs = pool.submit(write_tiffs)
         name = Path(result.source).name if result.source else stem
         draw_thickness_map(
             result.thickness_nm,
@@ -128,4 +136,5 @@ def write_map_outputs(
         )
         write_json(tmp["stats"], stats_document(result, extra_stats))
         write_optional_outputs(analysis, result, tmp)
+        tiffs.result()
     return paths

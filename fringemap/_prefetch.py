@@ -1,0 +1,37 @@
+"""Start-up work done in the background while a command reads its first photo.
+
+A fresh ``fringemap map`` process spends about a second before its first result
+on two things that do not depend on the photo: loading numba's machinery for
+the cached compiled kernels, and importing matplotlib for the map figure.
+:func:`start` does both in a daemon thread; the main thread meanwhile parses
+the recipe, builds the colour table and decodes the photo (mostly C code that
+releases the GIL), and the heavy kernels release the GIL too. Nothing here
+changes a result: if the background work fails or is not finished, the main
+thread simply imports and loads what it needs itself.
+"""
+
+from __future__ import annotations
+
+import threading
+
+__all__ = ["start"]
+
+
+def _work() -> None:
+    try:
+        import numpy as np
+
+        from .matching.fullres import dark_mask
+
+        dark_mask(np.zeros((1, 1, 3), dtype=np.float32), 0.0)  # loads numba's code machinery
+        import matplotlib.backends.backend_agg  # noqa: F401
+        import matplotlib.figure  # noqa: F401
+    except Exception:  # pragma: no cover - the main thread will meet the same error
+        pass
+
+
+def start() -> threading.Thread:
+    """Start the background start-up work; returns its (daemon) thread."""
+    thread = threading.Thread(target=_work, name="fringemap-prefetch", daemon=True)
+    thread.start()
+    return thread
