@@ -23,7 +23,10 @@ def _work() -> None:
 
         from .matching.fullres import dark_mask
 
-        dark_mask(np.zeros((1, 1, 3), dtype=np.float32), 0.0)  # loads numba's code machinery
+        # loads numba's machinery for compiled code (and this kernel, for 8-bit photos)
+        lut = np.zeros(256, dtype=np.float32)
+        lut.flags.writeable = False  # as a photo's code table
+        dark_mask(np.zeros((1, 1, 3), dtype=np.uint8), lut, 0.0)
         import matplotlib.backends.backend_agg  # noqa: F401
         import matplotlib.figure  # noqa: F401
     except Exception:  # pragma: no cover - the main thread will meet the same error

@@ -29,7 +29,17 @@ from .colour.transfer import srgb_decode
 from .confidence import classify
 from .errors import MeasurementError, OptionError
 from .matching.candidates import find_candidates
-from .matching.fullres import block_mean, dark_mask, fill_nearest, fullres_match, interp_coarse
+from .matching.fullres import (
+    NO_LUT,
+    block_mean,
+    dark_mask,
+    fill_nearest,
+    fullres_match,
+    interp_coarse,
+    linear_at,
+    neighbour_support,
+    redo_pixels,
+)
 from .matching.gain import fit_gain_field
 from .matching.space import INTENSITY_WEIGHT_CHROMA, INTENSITY_WEIGHT_FULL, encode
 from .orders.select import select_orders
@@ -225,10 +235,14 @@ def measure(
             f"expected a Photo, path or array, got {type(photo).__name__}", where="photo"
         )
     where = photo.path or "photo"
-    linear = photo.linear
-    h, w = linear.shape[:2]
+    h, w = photo.shape
     if camera is not None:
-        linear = camera.apply(linear)
+        img, code_lut = np.ascontiguousarray(camera.apply(photo.linear), dtype=np.float32), NO_LUT
+    elif photo.codes is not None:
+        # 8- and 16-bit photos are matched from their stored codes: no float copy
+        img, code_lut = photo.codes, photo.code_lut
+    else:
+        img, code_lut = np.ascontiguousarray(photo.linear, dtype=np.float32), NO_LUT
     if table is None:
         say("colour table")
         table = recipe.colour_table()
@@ -248,14 +262,14 @@ def measure(
             raise OptionError(
                 f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where=anchor_where
             )
-    linear = np.ascontiguousarray(linear, dtype=np.float32)
     saturated = photo.saturated
-    dark = dark_mask(linear, float(srgb_decode(np.array(MeasureSettings.dark_encoded))))
+    dark = dark_mask(img, code_lut, float(srgb_decode(np.array(MeasureSettings.dark_encoded))))
     if saturated.mean() > 0.98:
         raise MeasurementError(
             "the photo is saturated almost everywhere: lower the exposure", where=where
         )
-    sample = linear[:: max(1, h // 200), :: max(1, w // 200)] @ np.array([0.2126, 0.7152, 0.0722])
+    ys_s, xs_s = np.mgrid[0 : h : max(1, h // 200), 0 : w : max(1, w // 200)]
+    sample = linear_at(img, code_lut, ys_s.ravel(), xs_s.ravel()) @ _Y709
     if float(np.percentile(sample, 99.9)) < float(srgb_decode(np.array(0.02))):
         raise MeasurementError("the photo is black: nothing was recorded", where=where)
     no_film = _background(dark, roi_mask)
@@ -263,7 +277,7 @@ def measure(
 
     # ---- coarse level: gain field and order selection ------------------------------
     f = max(1, int(np.ceil(max(h, w) / MeasureSettings.coarse_side)))
-    lin_c, frac_c = block_mean(linear, usable, f)
+    lin_c, frac_c = block_mean(img, code_lut, usable, f)
     valid_c = frac_c >= 0.5
     hc, wc = valid_c.shape
     e_tab = encode(table.rgb)
@@ -319,7 +333,7 @@ def measure(
     t_faded = float(table.thickness_nm[np.argmax(faded_c)]) if faded_c.any() else np.inf
     # the first, chromaticity-led passes only need the gain's broad shape: half resolution
     f_half = 2 * f
-    lin_h, frac_h = block_mean(linear, usable, f_half)
+    lin_h, frac_h = block_mean(img, code_lut, usable, f_half)
     levels = {f: (lin_c, valid_c), f_half: (lin_h, frac_h >= 0.5)}
     full_lin_c, full_valid_c = lin_c, valid_c
     factors = [
@@ -415,8 +429,9 @@ def measure(
     filled = fill_nearest(sel.thickness_nm)
     pred_c = np.nan_to_num(filled, nan=t0)
     thick, cost, edge = fullres_match(
-        linear,
+        img,
         usable,
+        code_lut=code_lut,
         predicted_coarse_nm=pred_c,
         gain_coarse=gain_c,
         factor=f,
@@ -433,17 +448,11 @@ def measure(
     # pixels whose prediction was off (steps, scratches): search the whole table there.
     # A poor fit alone counts only where neighbours share it: an isolated pixel (noise,
     # a JPEG block, a speck of dust) cannot be a step, and no jump would be accepted there
-    poor = (np.isfinite(cost) & (cost > MeasureSettings.off_model_factor * noise_full)).view(
-        np.uint8
-    )
-    poor_near = cv2.filter2D(poor, -1, np.ones((3, 3), np.uint8), borderType=cv2.BORDER_CONSTANT)
-    redo = edge | (poor.view(bool) & (poor_near >= 3))
-    del poor, poor_near
-    n_redo = int(redo.sum())
+    ys, xs = redo_pixels(cost, edge, MeasureSettings.off_model_factor * noise_full)
+    n_redo = int(ys.size)
     if n_redo:
-        ys, xs = np.nonzero(redo)
         g = interp_coarse(gain_c, ys, xs, (h, w), f)
-        q = encode(linear[ys, xs] / g[:, None])
+        q = encode(linear_at(img, code_lut, ys, xs) / g[:, None])
         gc = find_candidates(  # on the ~2 nm grid, refined by a parabola
             q,
             e_coarse,
@@ -464,15 +473,11 @@ def measure(
         far = np.abs(t_alt - p[:, 0]) > 0.5 * period
         better = c_alt < np.where(far, 0.5, 1.0) * cost[ys, xs]
         # ... and be shared by neighbours: a real step is wider than one isolated pixel
-        jumped = np.zeros((h, w), dtype=np.uint8)
-        jumped[ys[better & far], xs[better & far]] = 1
-        support = cv2.filter2D(
-            jumped, -1, np.ones((3, 3), np.uint8), borderType=cv2.BORDER_CONSTANT
-        )
-        better &= ~far | (support[ys, xs] >= 3)  # itself and at least two neighbours
+        edge[...] = False  # reused as working space
+        support = neighbour_support(ys, xs, better & far, edge)
+        better &= ~far | (support >= 3)  # itself and at least two neighbours
         thick[ys[better], xs[better]] = t_alt[better]
         cost[ys[better], xs[better]] = c_alt[better]
-        del jumped, support
 
     # ---- reasons and confidence ----------------------------------------------------
     say("reasons")
@@ -509,7 +514,7 @@ def measure(
     )
     # the full-resolution intermediates are no longer needed: free them before statistics
     # (keeps the peak memory of a 12-megapixel photo lower)
-    del thick, cost, edge, redo, usable, dark, no_film
+    del thick, cost, edge, usable, dark, no_film
     gain_full_centre = float(gain.evaluate_at(np.array([h // 2]), np.array([w // 2]), (h, w))[0])
     gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 

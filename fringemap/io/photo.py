@@ -82,7 +82,7 @@ _SUPPORTED_HINT = "fringemap reads PNG, JPEG, TIFF and camera raw files"
 # --------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, init=False)
 class Photo:
     """A photograph decoded to linear light.
 
@@ -91,7 +91,9 @@ class Photo:
     linear : numpy.ndarray
         Linear-light RGB, float32, shape ``(H, W, 3)``, channel last. Nominally
         0-1, where 1 is the full scale of the file's encoding (or the raw white
-        level); float TIFF files may hold values outside that range.
+        level); float TIFF files may hold values outside that range. Photos
+        read from 8- and 16-bit files keep their stored values (``codes``) and
+        decode this array on first use (then keep it).
     path : str or None
         The file the photo was read from, or None for an in-memory array.
     bit_depth : int
@@ -119,9 +121,16 @@ class Photo:
         ignored), exposure settings when known (``"exposure_time_s"``,
         ``"f_number"``, ``"iso"``), and for raw files the decoder's white
         balance and levels (``"camera_white_balance"``, ...).
+    codes : numpy.ndarray or None
+        The stored values, uint8 or uint16, shape ``(H, W, 3)``, upright, when
+        the photo came from an 8- or 16-bit file; ``linear == code_lut[codes]``.
+        Large photos are measured from these directly (a quarter or half of the
+        memory of ``linear``).
+    code_lut : numpy.ndarray or None
+        float32, one linear value per stored code (length 2**bit_depth).
     """
 
-    linear: np.ndarray = field(repr=False)
+    _linear: np.ndarray | None = field(repr=False)
     path: str | None
     bit_depth: int
     encoding: str
@@ -130,23 +139,92 @@ class Photo:
     datetime_original: str | None = None
     camera: str | None = None
     metadata: dict = field(default_factory=dict, repr=False)
+    codes: np.ndarray | None = field(default=None, repr=False)
+    code_lut: np.ndarray | None = field(default=None, repr=False)
 
-    def __post_init__(self) -> None:
-        lin = self.linear
-        if not isinstance(lin, np.ndarray) or lin.ndim != 3 or lin.shape[2] != 3:
-            raise OptionError(
-                f"Photo.linear must be an (H, W, 3) array, got shape {np.shape(lin)}",
-                where="linear",
-            )
-        if lin.dtype != np.float32:
-            raise OptionError(
-                f"Photo.linear must be float32, got {lin.dtype}; convert with .astype(np.float32)",
-                where="linear",
-            )
+    def __init__(
+        self,
+        linear: np.ndarray | None = None,
+        path: str | None = None,
+        bit_depth: int = 8,
+        encoding: str = "srgb",
+        saturated: np.ndarray | None = None,
+        orientation_applied: int = 1,
+        datetime_original: str | None = None,
+        camera: str | None = None,
+        metadata: dict | None = None,
+        *,
+        codes: np.ndarray | None = None,
+        code_lut: np.ndarray | None = None,
+    ) -> None:
+        values = dict(
+            _linear=linear,
+            path=path,
+            bit_depth=bit_depth,
+            encoding=encoding,
+            saturated=saturated,
+            orientation_applied=orientation_applied,
+            datetime_original=datetime_original,
+            camera=camera,
+            metadata={} if metadata is None else metadata,
+            codes=codes,
+            code_lut=code_lut,
+        )
+        for name, value in values.items():
+            object.__setattr__(self, name, value)
+        self._check()
+
+    @property
+    def linear(self) -> np.ndarray:
+        """Linear-light RGB, float32 (H, W, 3) (see the class docstring)."""
+        if self._linear is None:
+            if self.codes.dtype == np.uint8:
+                lin = cv2.LUT(self.codes, self.code_lut)  # several times faster than indexing
+            else:
+                lin = self.code_lut[self.codes]
+            object.__setattr__(self, "_linear", lin)
+        return self._linear
+
+    def _check(self) -> None:
+        if self._linear is None:
+            codes, lut = self.codes, self.code_lut
+            if (
+                not isinstance(codes, np.ndarray)
+                or codes.dtype not in (np.uint8, np.uint16)
+                or codes.ndim != 3
+                or codes.shape[2] != 3
+                or not codes.flags.c_contiguous
+            ):
+                raise OptionError(
+                    "Photo.codes must be a C-contiguous uint8 or uint16 (H, W, 3) array, got "
+                    f"{getattr(codes, 'dtype', type(codes).__name__)} {np.shape(codes)}",
+                    where="codes",
+                )
+            full = int(np.iinfo(codes.dtype).max) + 1
+            if not isinstance(lut, np.ndarray) or lut.dtype != np.float32 or lut.shape != (full,):
+                raise OptionError(
+                    f"Photo.code_lut must be float32 of shape ({full},), got {np.shape(lut)}",
+                    where="code_lut",
+                )
+            shape = codes.shape
+        else:
+            lin = self._linear
+            if not isinstance(lin, np.ndarray) or lin.ndim != 3 or lin.shape[2] != 3:
+                raise OptionError(
+                    f"Photo.linear must be an (H, W, 3) array, got shape {np.shape(lin)}",
+                    where="linear",
+                )
+            if lin.dtype != np.float32:
+                raise OptionError(
+                    f"Photo.linear must be float32, got {lin.dtype}; convert with "
+                    ".astype(np.float32)",
+                    where="linear",
+                )
+            shape = lin.shape
         sat = self.saturated
-        if not isinstance(sat, np.ndarray) or sat.dtype != np.bool_ or sat.shape != lin.shape[:2]:
+        if not isinstance(sat, np.ndarray) or sat.dtype != np.bool_ or sat.shape != shape[:2]:
             raise OptionError(
-                f"Photo.saturated must be a bool array of shape {lin.shape[:2]}, "
+                f"Photo.saturated must be a bool array of shape {shape[:2]}, "
                 f"got {getattr(sat, 'dtype', type(sat).__name__)} {np.shape(sat)}",
                 where="saturated",
             )
@@ -159,7 +237,8 @@ class Photo:
     @property
     def shape(self) -> tuple[int, int]:
         """Height and width of the photo, pixels: ``(H, W)``."""
-        return (int(self.linear.shape[0]), int(self.linear.shape[1]))
+        stored = self.codes if self._linear is None else self._linear
+        return (int(stored.shape[0]), int(stored.shape[1]))
 
 
 # --------------------------------------------------------------------------
@@ -413,6 +492,14 @@ def _srgb_lut(full_scale: int) -> np.ndarray:
     return lut
 
 
+def _code_lut(dtype: np.dtype, use_srgb: bool) -> np.ndarray:
+    """float32 table: stored integer code -> linear light (as :func:`_to_linear` computes)."""
+    full = int(np.iinfo(dtype).max)
+    if use_srgb:
+        return _srgb_lut(full)
+    return np.arange(full + 1, dtype=np.float32) / np.float32(full)
+
+
 def _saturation_mask(rgb: np.ndarray) -> np.ndarray:
     """bool (H, W): any channel of the stored values >= SATURATION_LEVEL of full scale."""
     if rgb.dtype.kind == "u":
@@ -480,17 +567,26 @@ def _finish(
     else:
         bit_depth = int(rgb.dtype.itemsize * 8)
     saturated = _saturation_mask(rgb)
-    linear = _to_linear(rgb, use_srgb)
-    if already_oriented is None:
-        orientation = tags.orientation
-        linear = _orient(linear, orientation)
-        saturated = _orient(saturated, orientation)
+    orientation = tags.orientation if already_oriented is None else already_oriented
+    turn = already_oriented is None
+    if rgb.dtype in (np.uint8, np.uint16):
+        # integer files keep their stored values; linear light is decoded on first use
+        linear = None
+        codes = np.ascontiguousarray(_orient(rgb, orientation) if turn else rgb)
+        lut = _code_lut(rgb.dtype, use_srgb)
     else:
-        orientation = already_oriented
+        linear = _to_linear(rgb, use_srgb)
+        linear = np.ascontiguousarray(_orient(linear, orientation) if turn else linear)
+        linear = linear.astype(np.float32, copy=False)
+        codes = lut = None
+    if turn:
+        saturated = _orient(saturated, orientation)
     meta = dict(metadata)
     meta.update(tags.extra)
     return Photo(
-        linear=np.ascontiguousarray(linear, dtype=np.float32),
+        linear=linear,
+        codes=codes,
+        code_lut=lut,
         path=path,
         bit_depth=bit_depth,
         encoding="srgb" if use_srgb else "linear",

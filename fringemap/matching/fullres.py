@@ -25,6 +25,8 @@ from .space import _dist
 
 __all__ = [
     "ENCODE_LUT",
+    "NO_LUT",
+    "linear_at",
     "dark_mask",
     "block_mean",
     "fill_nearest",
@@ -50,20 +52,41 @@ def _enc(x, lut):
     return lut[i] * (1.0 - fr) + lut[i + 1] * fr
 
 
+@njit(cache=True, inline="always")
+def _px(img, lut, y, x, c):
+    """Linear value of channel c at (y, x): ``lut[img]`` for stored codes (``lut``
+    not empty), else ``img`` itself (already linear)."""
+    v = img[y, x, c]
+    if lut.shape[0] > 0:
+        return np.float64(lut[int(v)])
+    return np.float64(v)
+
+
+NO_LUT = np.zeros(0, dtype=np.float32)
+
+
 @njit(cache=True, parallel=True, nogil=True)
-def dark_mask(linear, threshold):
-    """Pixels whose linear luminance (Rec. 709 weights) is below ``threshold``."""
-    h, w = linear.shape[0], linear.shape[1]
+def dark_mask(img, lut, threshold):
+    """Pixels whose linear luminance (Rec. 709 weights) is below ``threshold``.
+
+    ``img`` is linear RGB (H, W, 3) with ``lut`` = :data:`NO_LUT`, or stored
+    integer codes with ``lut`` their linear values (as in every kernel here).
+    """
+    h, w = img.shape[0], img.shape[1]
     out = np.empty((h, w), dtype=np.bool_)
     for y in prange(h):
         for x in range(w):
-            lum = 0.2126 * linear[y, x, 0] + 0.7152 * linear[y, x, 1] + 0.0722 * linear[y, x, 2]
+            lum = (
+                0.2126 * _px(img, lut, y, x, 0)
+                + 0.7152 * _px(img, lut, y, x, 1)
+                + 0.0722 * _px(img, lut, y, x, 2)
+            )
             out[y, x] = lum < threshold
     return out
 
 
 @njit(cache=True, parallel=True, nogil=True)
-def block_mean(linear, usable, f):
+def block_mean(img, lut, usable, f):
     """Means of usable pixels over f×f blocks: (hc, wc, 3) and usable fraction (hc, wc)."""
     h, w = usable.shape
     hc, wc = h // f, w // f
@@ -78,9 +101,9 @@ def block_mean(linear, usable, f):
             for y in range(by * f, by * f + f):
                 for x in range(bx * f, bx * f + f):
                     if usable[y, x]:
-                        s0 += linear[y, x, 0]
-                        s1 += linear[y, x, 1]
-                        s2 += linear[y, x, 2]
+                        s0 += _px(img, lut, y, x, 0)
+                        s1 += _px(img, lut, y, x, 1)
+                        s2 += _px(img, lut, y, x, 2)
                         n += 1
             if n > 0:
                 mean[by, bx, 0] = s0 / n
@@ -168,7 +191,7 @@ def _d_at(i, q0, q1, q2, qq, e, ee, mu):
 
 @njit(cache=True, parallel=True, nogil=True)
 def _fullres_kernel(
-    linear, usable, pred_c, gain_c, ys0, ys1, fys, xs0, xs1, fxs, e, ee, lut, lam, t0, step,
+    img, lut_img, usable, pred_c, gain_c, ys0, ys1, fys, xs0, xs1, fxs, e, ee, lut, lam, t0, step,
     half, out_t, out_c, out_edge,
 ):  # fmt: skip
     h, w = usable.shape
@@ -184,9 +207,9 @@ def _fullres_kernel(
             x0, x1, fx = xs0[x], xs1[x], fxs[x]
             pred = _interp(pred_c, y0, y1, fy, x0, x1, fx)
             g = _interp(gain_c, y0, y1, fy, x0, x1, fx)
-            q0 = _enc(linear[y, x, 0] / g, lut)
-            q1 = _enc(linear[y, x, 1] / g, lut)
-            q2 = _enc(linear[y, x, 2] / g, lut)
+            q0 = _enc(_px(img, lut_img, y, x, 0) / g, lut)
+            q1 = _enc(_px(img, lut_img, y, x, 1) / g, lut)
+            q2 = _enc(_px(img, lut_img, y, x, 2) / g, lut)
             qq = q0 * q0 + q1 * q1 + q2 * q2
             mu = lam * qq
             c = int(round((pred - t0) / step))
@@ -227,6 +250,13 @@ def _fullres_kernel(
             out_edge[y, x] = abs(bi - c) >= half
 
 
+def linear_at(img: np.ndarray, code_lut: np.ndarray, ys: np.ndarray, xs: np.ndarray):
+    """Linear RGB (P, 3) float32 of the pixels (``ys``, ``xs``) of an image as the
+    kernels take it (linear, or codes with their ``code_lut``)."""
+    values = img[ys, xs]
+    return code_lut[values] if code_lut.size else values.astype(np.float32, copy=False)
+
+
 def interp_coarse(grid: np.ndarray, ys: np.ndarray, xs: np.ndarray, shape, factor: int):
     """A coarse map (block size ``factor`` px) bilinearly interpolated at full-resolution
     pixels (``ys``, ``xs``) of a photo of ``shape`` (H, W); float64, same as the kernel."""
@@ -242,9 +272,10 @@ def interp_coarse(grid: np.ndarray, ys: np.ndarray, xs: np.ndarray, shape, facto
 
 
 def fullres_match(
-    linear: np.ndarray,
+    img: np.ndarray,
     usable: np.ndarray,
     *,
+    code_lut: np.ndarray = NO_LUT,
     predicted_coarse_nm: np.ndarray,
     gain_coarse: np.ndarray,
     factor: int,
@@ -258,8 +289,9 @@ def fullres_match(
 
     Parameters
     ----------
-    linear : ndarray (H, W, 3) float32
-        Linear, white-balanced (and camera-corrected) photo.
+    img : ndarray (H, W, 3)
+        Linear, white-balanced (and camera-corrected) photo, float32; or its
+        stored integer codes, with ``code_lut`` their linear values.
     usable : ndarray (H, W) bool
         Pixels to match.
     predicted_coarse_nm : ndarray (hc, wc)
@@ -293,7 +325,8 @@ def fullres_match(
     ys = _axis_weights(h, pred_c.shape[0], int(factor))
     xs = _axis_weights(w, pred_c.shape[1], int(factor))
     _fullres_kernel(
-        np.ascontiguousarray(linear, dtype=np.float32),
+        img if code_lut.size else np.ascontiguousarray(img, dtype=np.float32),
+        code_lut,
         np.ascontiguousarray(usable),
         pred_c,
         np.ascontiguousarray(gain_coarse, dtype=np.float64),
@@ -311,3 +344,84 @@ def fullres_match(
         out_edge,
     )
     return out_t, out_c, out_edge
+
+
+@njit(cache=True, inline="always")
+def _poor(cost, y, x, thr):
+    c = cost[y, x]
+    return np.isfinite(c) and c > thr
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def _redo_rows(cost, edge, thr, fill, counts, ys, xs, offsets):
+    h, w = edge.shape
+    for y in prange(h):
+        n = 0 if not fill else offsets[y]
+        for x in range(w):
+            take = edge[y, x]
+            if not take and _poor(cost, y, x, thr):
+                near = 0
+                for y1 in range(max(0, y - 1), min(h, y + 2)):
+                    for x1 in range(max(0, x - 1), min(w, x + 2)):
+                        if _poor(cost, y1, x1, thr):
+                            near += 1
+                take = near >= 3
+            if take:
+                if fill:
+                    ys[n] = y
+                    xs[n] = x
+                n += 1
+        if not fill:
+            counts[y] = n
+
+
+def redo_pixels(cost: np.ndarray, at_edge: np.ndarray, threshold: float):
+    """Pixels for the exhaustive search, in raster order: (ys, xs) int64 arrays.
+
+    A pixel is taken when it is ``at_edge`` (its minimum lay far from the
+    prediction) or when its cost exceeds ``threshold`` together with at least
+    two of its 8 neighbours (a poor fit shared by neighbours; an isolated one
+    cannot be a step). No full-size temporary array is made.
+    """
+    h, _ = at_edge.shape
+    counts = np.zeros(h, dtype=np.int64)
+    none = np.empty(0, dtype=np.int64)
+    _redo_rows(cost, at_edge, float(threshold), False, counts, none, none, none)
+    offsets = np.concatenate(([0], np.cumsum(counts)[:-1]))
+    total = int(counts.sum())
+    ys = np.empty(total, dtype=np.int64)
+    xs = np.empty(total, dtype=np.int64)
+    _redo_rows(cost, at_edge, float(threshold), True, counts, ys, xs, offsets)
+    return ys, xs
+
+
+@njit(cache=True, nogil=True)
+def _support(ys, xs, marked, scratch):
+    h, w = scratch.shape
+    for i in range(ys.shape[0]):
+        if marked[i]:
+            scratch[ys[i], xs[i]] = True
+    out = np.zeros(ys.shape[0], dtype=np.int64)
+    for i in range(ys.shape[0]):
+        if not marked[i]:
+            continue
+        y, x = ys[i], xs[i]
+        n = 0
+        for y1 in range(max(0, y - 1), min(h, y + 2)):
+            for x1 in range(max(0, x - 1), min(w, x + 2)):
+                if scratch[y1, x1]:
+                    n += 1
+        out[i] = n
+    for i in range(ys.shape[0]):  # leave the scratch array as it was (all False)
+        scratch[ys[i], xs[i]] = False
+    return out
+
+
+def neighbour_support(ys: np.ndarray, xs: np.ndarray, marked: np.ndarray, scratch: np.ndarray):
+    """For each marked pixel (``ys``, ``xs``), how many marked pixels lie in its 3×3
+    neighbourhood, itself included (0 for unmarked ones).
+
+    ``scratch`` is a bool (H, W) array, all False, used as working space and
+    left all False.
+    """
+    return _support(ys, xs, np.asarray(marked, dtype=np.bool_), scratch)
