@@ -2,7 +2,8 @@
 
 A fresh ``fringemap map`` process spends about a second before its first result
 on two things that do not depend on the photo: loading numba's machinery for
-the cached compiled kernels, and importing matplotlib for the map figure.
+the cached compiled kernels, and importing matplotlib (and loading its fonts)
+for the map figure.
 :func:`start` does both in a daemon thread; the main thread meanwhile parses
 the recipe, builds the colour table and decodes the photo (mostly C code that
 releases the GIL), and the heavy kernels release the GIL too. Nothing here
@@ -27,8 +28,9 @@ def _work() -> None:
         lut = np.zeros(256, dtype=np.float32)
         lut.flags.writeable = False  # as a photo's code table
         dark_mask(np.zeros((1, 1, 3), dtype=np.uint8), lut, 0.0)
-        import matplotlib.backends.backend_agg  # noqa: F401
-        import matplotlib.figure  # noqa: F401
+        from .report.figures import warm_up
+
+        warm_up()  # matplotlib imported, its fonts loaded, a tiny figure drawn
     except Exception:  # pragma: no cover - the main thread will meet the same error
         pass
 

@@ -162,3 +162,30 @@ def test_anchor_fixes_the_order():
     err = np.abs(res.thickness_nm[ok] - photo.thickness_nm[ok])
     assert np.median(err) <= 1.5
     assert np.mean(err > 40) < 0.003
+
+
+@pytest.mark.parametrize("specks", [False, True])
+def test_background_mask_matches_an_independent_labelling(specks):
+    # independent computation: scipy.ndimage.label (8-connectivity) of the dark pixels,
+    # components of at least 0.5 % of the photo, dilated by 2 px (a 5x5 square)
+    from scipy import ndimage
+
+    from fringemap.measure import _background
+
+    h, w = 300, 400
+    dark = np.zeros((h, w), dtype=bool)
+    dark[:40, :] = True  # a large background band
+    dark[100:104, 100:104] = True  # a small dark spot: not background
+    if specks:  # > 65535 separate dark specks: the 32-bit labelling path
+        dark = np.zeros((1200, 1200), dtype=bool)
+        dark[::3, ::3] = True
+        dark[:100, :] = True
+        h, w = dark.shape
+    roi = np.ones((h, w), dtype=bool)
+    roi[:, -20:] = False
+    got = _background(dark, roi)
+    labels, n = ndimage.label(dark & roi, structure=np.ones((3, 3)))
+    sizes = ndimage.sum_labels(np.ones_like(labels), labels, index=np.arange(1, n + 1))
+    big = np.isin(labels, 1 + np.flatnonzero(sizes >= 0.005 * h * w))
+    want = ndimage.binary_dilation(big, structure=np.ones((5, 5))) & roi
+    np.testing.assert_array_equal(got, want)

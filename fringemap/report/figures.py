@@ -91,6 +91,19 @@ def _new_figure(width_in: float, height_in: float, *, constrained: bool = False)
     return fig
 
 
+def warm_up() -> None:
+    """Import matplotlib and draw a tiny figure with text, a colour bar and an image
+    into memory: the first real figure then skips the font loading and caches."""
+    import io
+
+    fig, ax, box, size = _map_axes((8, 8), right_in=1.0)
+    mappable = _coloured_image(ax, np.eye(8), THICKNESS_CMAP, NAN_GREY, 0.0, 1.0, None)
+    _style_image_axes(ax, ((0, 8), (8, 0)), "px")
+    _colourbar(fig, mappable, box, size, "thickness (nm)")
+    _title(ax, "warm-up")
+    fig.savefig(io.BytesIO(), format="png", dpi=20)
+
+
 def _save_png(fig, path: str | os.PathLike[str]) -> Path:
     """Write ``fig`` as a PNG to ``path`` atomically; return the path."""
     from ..io.write import atomic_path
