@@ -20,7 +20,7 @@ from numba import njit, prange
 
 from .matching.fullres import _axis_weights, _interp
 
-__all__ = ["classify"]
+__all__ = ["classify", "mask_reasons"]
 
 #: the confidence is stored in steps of 1 / CONF_STEPS
 CONF_STEPS = 1024.0
@@ -30,11 +30,7 @@ MEASURED, OUTSIDE, NO_FILM, SATURATED, TOO_DARK, OFF_MODEL, AMBIGUOUS, BEYOND = 
 
 @njit(cache=True, parallel=True, nogil=True)
 def _classify_kernel(
-    roi,
-    dark,
-    no_film,
-    saturated,
-    usable,
+    reasons,
     thick,
     cost,
     pred_c,
@@ -57,9 +53,8 @@ def _classify_kernel(
     noise,
     off_thr,
     min_region,
-    out_r,
 ):
-    h, w = roi.shape
+    h, w = reasons.shape
     n = faded.shape[0]
     hc, wc = region_c.shape
     sigma = np.sqrt(noise / 3.0)
@@ -70,23 +65,13 @@ def _classify_kernel(
             c = cost[y, x]
             thick[y, x] = np.nan
             cost[y, x] = 0.0
-            if not roi[y, x]:
-                out_r[y, x] = OUTSIDE
+            if reasons[y, x] != MEASURED:  # already decided by the masks
                 continue
-            if saturated[y, x]:
-                out_r[y, x] = SATURATED
-                continue
-            if no_film[y, x]:
-                out_r[y, x] = NO_FILM
-                continue
-            if dark[y, x]:
-                out_r[y, x] = TOO_DARK
-                continue
-            if not usable[y, x] or not np.isfinite(t):
-                out_r[y, x] = OFF_MODEL
+            if not np.isfinite(t):
+                reasons[y, x] = OFF_MODEL
                 continue
             if c > off_thr:  # a colour the stack cannot show (judged first: a wrong lamp
-                out_r[y, x] = OFF_MODEL  # or stack must not pass for a faded film)
+                reasons[y, x] = OFF_MODEL  # or stack must not pass for a faded film)
                 continue
             i = int(round((t - t0) / step))
             if i < 0:
@@ -95,7 +80,7 @@ def _classify_kernel(
                 i = n - 1
             pred = _interp(pred_c, ys0[y], ys1[y], fys[y], xs0[x], xs1[x], fxs[x])
             if faded[i] or pred >= t_faded - 0.5 * step or (t >= t_max - 2 * step and t_max > t0):
-                out_r[y, x] = BEYOND
+                reasons[y, x] = BEYOND
                 continue
             cy = min(hc - 1, y // f)
             cx = min(wc - 1, x // f)
@@ -104,9 +89,9 @@ def _classify_kernel(
             if reg >= 0:
                 margin = margins[reg]
                 if sizes[reg] < min_region and margin < 0.5:
-                    out_r[y, x] = AMBIGUOUS
+                    reasons[y, x] = AMBIGUOUS
                     continue
-            out_r[y, x] = MEASURED
+            reasons[y, x] = MEASURED
             thick[y, x] = t
             sig_t = sigma / max(slope[i], 1e-6)
             m = 0.5 + margin / 4.0
@@ -117,13 +102,34 @@ def _classify_kernel(
             cost[y, x] = np.round(conf * CONF_STEPS) / CONF_STEPS
 
 
+@njit(cache=True, parallel=True, nogil=True)
+def _mask_kernel(roi, saturated, dark, no_film, out):
+    h, w = roi.shape
+    for y in prange(h):
+        for x in range(w):
+            if not roi[y, x]:
+                out[y, x] = OUTSIDE
+            elif saturated[y, x]:
+                out[y, x] = SATURATED
+            elif no_film[y, x]:
+                out[y, x] = NO_FILM
+            elif dark[y, x]:
+                out[y, x] = TOO_DARK
+            else:
+                out[y, x] = MEASURED  # usable: decided later by the match
+
+
+def mask_reasons(*, roi, saturated, dark, no_film) -> np.ndarray:
+    """Reason codes (uint8, (H, W)) that the masks alone decide; 0 where the pixel is
+    usable. Precedence: outside the ROI, saturated, no film, too dark."""
+    out = np.empty(roi.shape, dtype=np.uint8)
+    _mask_kernel(roi, saturated, dark, no_film, out)
+    return out
+
+
 def classify(
     *,
-    roi,
-    dark,
-    no_film,
-    saturated,
-    usable,
+    reasons,
     thickness_nm,
     cost,
     predicted_coarse_nm,
@@ -148,22 +154,19 @@ def classify(
     coarse grid of block size ``factor`` px; ``faded`` and ``slope_per_nm`` are
     per table entry.
 
-    To keep a large photo's memory low, ``thickness_nm`` and ``cost`` (float32,
-    C-contiguous) are overwritten: they are returned as the final thickness and
-    the confidence.
+    ``reasons`` (uint8, from :func:`mask_reasons`) holds the codes the masks
+    decide (0 where the pixel is usable); the codes of the usable pixels are
+    filled in. To keep a large photo's memory low, ``reasons``, ``thickness_nm``
+    and ``cost`` (float32, C-contiguous) are overwritten: they are returned as
+    the final thickness, reasons and confidence.
     """
-    h, w = roi.shape
+    h, w = reasons.shape
     for name, a in (("thickness_nm", thickness_nm), ("cost", cost)):
         if a.dtype != np.float32 or not a.flags.c_contiguous or a.shape != (h, w):
             raise ValueError(f"{name} must be a C-contiguous float32 array of shape {(h, w)}")
-    out_r = np.empty((h, w), dtype=np.uint8)
     pred_c = np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64)
     _classify_kernel(
-        roi,
-        dark,
-        no_film,
-        saturated,
-        usable,
+        reasons,
         thickness_nm,
         cost,
         pred_c,
@@ -182,6 +185,5 @@ def classify(
         float(noise),
         float(off_model_factor * noise),
         int(min_region_px),
-        out_r,
     )
-    return thickness_nm, out_r, cost
+    return thickness_nm, reasons, cost

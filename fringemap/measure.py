@@ -26,7 +26,7 @@ import numpy as np
 from . import __version__
 from .colour.table import ColourTable, order_marks_nm
 from .colour.transfer import srgb_decode
-from .confidence import classify
+from .confidence import classify, mask_reasons
 from .errors import MeasurementError, OptionError
 from .matching.candidates import find_candidates
 from .matching.fullres import (
@@ -175,16 +175,6 @@ def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
     return no_film & roi_mask
 
 
-def _mask_reasons(roi_mask, dark, no_film, saturated) -> np.ndarray:
-    """Reason codes that follow from the masks alone (before any matching)."""
-    reasons = np.zeros(roi_mask.shape, dtype=np.uint8)
-    reasons[~roi_mask] = REASON_CODES["outside-roi"]
-    reasons[roi_mask & dark] = REASON_CODES["too-dark"]
-    reasons[roi_mask & no_film] = REASON_CODES["no-film"]
-    reasons[roi_mask & saturated] = REASON_CODES["saturated"]
-    return reasons
-
-
 def measure(
     photo,
     recipe: Recipe,
@@ -276,8 +266,13 @@ def measure(
     sample = linear_at(img, code_lut, ys_s.ravel(), xs_s.ravel()) @ _Y709
     if float(np.percentile(sample, 99.9)) < float(srgb_decode(np.array(0.02))):
         raise MeasurementError("the photo is black: nothing was recorded", where=where)
-    no_film = _background(dark, roi_mask)
-    usable = roi_mask & ~saturated & ~dark & ~no_film
+    # what the masks decide, as reason codes (0 = usable): one uint8 map in place of the
+    # dark and background masks, filled in later by the match
+    reasons = mask_reasons(
+        roi=roi_mask, saturated=saturated, dark=dark, no_film=_background(dark, roi_mask)
+    )
+    del dark
+    usable = reasons == REASON_CODES["measured"]
 
     # ---- coarse level: gain field and order selection ------------------------------
     f = max(1, int(np.ceil(max(h, w) / MeasureSettings.coarse_side)))
@@ -299,7 +294,6 @@ def measure(
     y_tab = table.rgb @ np.array([0.2126, 0.7152, 0.0722])
     if not valid_c.any():
         # nothing with a colour: say so with reasons rather than invent a film
-        reasons = _mask_reasons(roi_mask, dark, no_film, saturated)
         thick_out = np.full((h, w), np.nan, dtype=np.float32)
         return ThicknessMap(
             thickness_nm=thick_out,
@@ -495,11 +489,7 @@ def measure(
     )
     slope = np.sqrt(np.sum(np.gradient(e_tab, step, axis=0) ** 2, axis=1))
     thick_out, reasons, conf = classify(
-        roi=roi_mask,
-        dark=dark,
-        no_film=no_film,
-        saturated=saturated,
-        usable=usable,
+        reasons=reasons,
         thickness_nm=thick,
         cost=cost,
         predicted_coarse_nm=pred_c,
@@ -518,7 +508,7 @@ def measure(
     )
     # the full-resolution intermediates are no longer needed: free them before statistics
     # (keeps the peak memory of a 12-megapixel photo lower)
-    del thick, cost, edge, usable, dark, no_film
+    del thick, cost, edge, usable
     gain_full_centre = float(gain.evaluate_at(np.array([h // 2]), np.array([w // 2]), (h, w))[0])
     gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 
