@@ -451,13 +451,14 @@ def measure(
     if n_redo:
         g = interp_coarse(gain_c, ys, xs, (h, w), f)
         q = encode(linear_at(img, code_lut, ys, xs) / g[:, None])
-        gc = find_candidates(  # on the ~2 nm grid, refined by a parabola
+        gc = find_candidates(  # a ~4 nm scan, each minimum refined on the full table
             q,
-            e_coarse,
+            e_tab,
             t0_nm=t0,
-            step_nm=step * stride,
+            step_nm=step,
             k=MeasureSettings.k,
             intensity_weight=INTENSITY_WEIGHT_FULL,
+            stride=2 * stride,
         )
         p = interp_coarse(pred_c, ys, xs, (h, w), f)[:, None]
         score = gc.cost / noise_full + ((gc.thickness_nm - p) / (0.3 * period)) ** 2

@@ -17,6 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, prange
 
+from ..errors import OptionError
+from .space import _dist
+
 __all__ = ["Candidates", "find_candidates"]
 
 
@@ -49,8 +52,49 @@ def _refine(dm, d0, dp):
     return off, d0 - 0.25 * (dm - dp) * off
 
 
+@njit(cache=True)
+def _descend(q0, q1, q2, qq, mu, e, ee, j, dj, limit):
+    """From entry j (distance dj) downhill on the table to a local minimum (at most
+    ``limit`` entries away), refined by a parabola: (fractional index, distance)."""
+    n = e.shape[0]
+    best = dj
+    dm = (
+        _dist(q0, q1, q2, qq, e[j - 1, 0], e[j - 1, 1], e[j - 1, 2], ee[j - 1], mu)
+        if j > 0
+        else np.inf
+    )
+    dp = (
+        _dist(q0, q1, q2, qq, e[j + 1, 0], e[j + 1, 1], e[j + 1, 2], ee[j + 1], mu)
+        if j < n - 1
+        else np.inf
+    )
+    bi = j
+    if dm < best and dm <= dp:
+        while bi > 0 and bi > j - limit and dm < best:
+            dp, best, bi = best, dm, bi - 1
+            dm = np.inf
+            if bi > 0:
+                i = bi - 1
+                dm = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+    elif dp < best:
+        while bi < n - 1 and bi < j + limit and dp < best:
+            dm, best, bi = best, dp, bi + 1
+            dp = np.inf
+            if bi < n - 1:
+                i = bi + 1
+                dp = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+    if 0 < bi < n - 1:
+        off, c = _refine(dm, best, dp)
+        return bi + off, c
+    return float(bi), best
+
+
 @njit(cache=True, parallel=True, nogil=True)
-def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
+def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_c):
+    # the scan runs over every stride-th entry; with stride > 1 each minimum it finds
+    # is then followed downhill on the full table and refined there
+    e = e_full[::stride]
+    ee = ee_full[::stride]
     n = e.shape[0]
     n_px = q.shape[0]
     chunk = 256
@@ -79,10 +123,20 @@ def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
                 dp = d[i + 1] if i + 1 < n else np.inf
                 if not (d0 <= dm and d0 < dp):
                     continue
-                if i == 0 or i == n - 1:
-                    off, c = 0.0, d0
+                if stride > 1:
+                    pos, c = _descend(q0, q1, q2, qq, mu, e_full, ee_full, i * stride, d0, stride)
+                    t = t0 + pos * step
+                    dup = False
+                    for j in range(k):
+                        if abs(out_t[p, j] - t) < 0.5 * step:
+                            dup = True
+                    if dup:
+                        continue
+                elif i == 0 or i == n - 1:
+                    t, c = t0 + i * step, d0
                 else:
                     off, c = _refine(dm, d0, dp)
+                    t = t0 + (i + off) * step
                 # insert into the sorted list of the k best
                 if c < out_c[p, k - 1]:
                     j = k - 1
@@ -91,7 +145,7 @@ def _candidates_kernel(q, e, ee, lam, k, t0, step, out_t, out_c):
                         out_t[p, j] = out_t[p, j - 1]
                         j -= 1
                     out_c[p, j] = c
-                    out_t[p, j] = t0 + (i + off) * step
+                    out_t[p, j] = t
 
 
 def find_candidates(
@@ -102,6 +156,7 @@ def find_candidates(
     step_nm: float,
     k: int,
     intensity_weight: float,
+    stride: int = 1,
 ) -> Candidates:
     """The ``k`` best local minima of the colour distance for each pixel.
 
@@ -117,13 +172,28 @@ def find_candidates(
         Number of candidates kept per pixel.
     intensity_weight : float
         λ of :mod:`fringemap.matching.space`.
+    stride : int
+        Scan every ``stride``-th entry only, then follow each minimum found
+        downhill on the full table and refine it there: about ``stride`` times
+        less work where the minima are wider than the stride (1: every entry).
     """
+    if int(stride) < 1:
+        raise OptionError(f"expected a stride >= 1, got {stride!r}", where="stride")
     q = np.ascontiguousarray(q, dtype=np.float64).reshape(-1, 3)
     e = np.ascontiguousarray(table_encoded, dtype=np.float64)
     ee = np.sum(e * e, axis=1)
     out_t = np.empty((q.shape[0], k))
     out_c = np.empty((q.shape[0], k))
     _candidates_kernel(
-        q, e, ee, float(intensity_weight), int(k), float(t0_nm), float(step_nm), out_t, out_c
+        q,
+        e,
+        ee,
+        int(stride),
+        float(intensity_weight),
+        int(k),
+        float(t0_nm),
+        float(step_nm),
+        out_t,
+        out_c,
     )
     return Candidates(thickness_nm=out_t, cost=out_c)

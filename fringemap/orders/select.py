@@ -32,7 +32,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
 from ..matching.candidates import _refine
 from ..matching.space import _dist
@@ -242,16 +242,32 @@ def _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm):
 
 
 @njit(cache=True)
-def _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo):
-    """:func:`_best_choice`, remembered per pixel for the last prediction asked."""
-    if memo[p, 0] == pred:
+def _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen):
+    """:func:`_best_choice`, remembered per pixel (in workspace ``ws`` for growth
+    number ``gen``) for the last prediction asked."""
+    memo, memo_gen = ws[2], ws[3]
+    if memo_gen[p] == gen and memo[p, 0] == pred:
         return memo[p, 1], memo[p, 2], memo[p, 3]
     t, c, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm)
+    memo_gen[p] = gen
     memo[p, 0] = pred
     memo[p, 1] = t
     memo[p, 2] = c
     memo[p, 3] = score
     return t, c, score
+
+
+@njit(cache=True)
+def _workspace(n):
+    """Heap keys and values, choice memo and its growth numbers, visit list: for one
+    growth at a time over n pixels (untouched pages cost nothing until used)."""
+    return (
+        np.empty(4 * n + 4),
+        np.empty(4 * n + 4, dtype=np.int64),
+        np.empty((n, 4)),
+        np.zeros(n, dtype=np.int64),
+        np.empty(n, dtype=np.int64),
+    )
 
 
 @njit(cache=True)
@@ -271,44 +287,32 @@ def _grow(
     out_c,
     assigned,
     abort_cost,
+    ws,
+    gen,
 ):
     """Grow from a seed over pixels with allowed[p]: (pixels assigned, cost sum, stopped).
 
     Growth stops early (``stopped``) once the cost sum exceeds ``abort_cost``.
+    The assigned pixels are listed, in order, in the workspace's visit list
+    (``ws[4][:count]``); ``gen`` is a number unique to this growth (> 0).
     """
-    n = h * w
-    keys = np.empty(4 * n + 4)
-    vals = np.empty(4 * n + 4, dtype=np.int64)
-    memo = np.full((n, 4), np.nan)
+    keys, vals, visit = ws[0], ws[1], ws[4]
     size = 0
     out_t[seed_p] = seed_t
     out_c[seed_p] = seed_c
     assigned[seed_p] = True
+    visit[0] = seed_p
     count = 1
     cost_sum = seed_c
     size = _push_neighbours(
-        seed_p,
-        h,
-        w,
-        allowed,
-        assigned,
-        keys,
-        vals,
-        size,
-        cand_t,
-        cand_c,
-        out_t,
-        tau,
-        max_jump,
-        lm,
-        memo,
+        seed_p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
     )
     while size > 0:
         key, p, size = _heap_pop(keys, vals, size)
         if assigned[p]:
             continue
         pred = _predict(p, h, w, out_t, assigned)
-        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo)
+        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen)
         if not np.isfinite(score):
             continue  # may be reached again from another side
         if score > key + 1e-12:
@@ -319,34 +323,22 @@ def _grow(
         out_t[p] = t
         out_c[p] = c
         assigned[p] = True
+        visit[count] = p
         count += 1
         cost_sum += c
         if cost_sum > abort_cost:
             return count, cost_sum, True
         size = _push_neighbours(
-            p,
-            h,
-            w,
-            allowed,
-            assigned,
-            keys,
-            vals,
-            size,
-            cand_t,
-            cand_c,
-            out_t,
-            tau,
-            max_jump,
-            lm,
-            memo,
+            p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
         )
     return count, cost_sum, False
 
 
 @njit(cache=True)
 def _push_neighbours(
-    p, h, w, allowed, assigned, keys, vals, size, cand_t, cand_c, out_t, tau, max_jump, lm, memo
+    p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
 ):
+    keys, vals = ws[0], ws[1]
     y, x = p // w, p % w
     for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
         y1, x1 = y + dy, x + dx
@@ -356,11 +348,54 @@ def _push_neighbours(
         if assigned[q] or not allowed[q]:
             continue
         pred = _predict(q, h, w, out_t, assigned)
-        t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, memo)
+        t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen)
         if not np.isfinite(score) or size >= keys.shape[0]:
             continue
         size = _heap_push(keys, vals, size, score, q)
     return size
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def _hypotheses(
+    s, sk, members, cand_t, cand_c, h, w, tau, max_jump, lm, bound, hyp_t, hyp_c, hyp_a, spaces, gen
+):
+    """Regrow a region from each of its seed's other candidates, in parallel.
+
+    Returns per candidate: pixels reached, cost sum, stopped early, and whether
+    it runs valid (a finite candidate other than the chosen one ``sk``).
+    """
+    kk = cand_t.shape[1]
+    counts = np.zeros(kk, dtype=np.int64)
+    sums = np.zeros(kk)
+    stopped = np.zeros(kk, dtype=np.bool_)
+    ran = np.zeros(kk, dtype=np.bool_)
+    for k in prange(kk):
+        if k == sk or not np.isfinite(cand_t[s, k]):
+            continue
+        cnt, csum, stop = _grow(
+            s,
+            cand_t[s, k],
+            cand_c[s, k],
+            members,
+            cand_t,
+            cand_c,
+            h,
+            w,
+            tau,
+            max_jump,
+            lm,
+            hyp_t[k],
+            hyp_c[k],
+            hyp_a[k],
+            bound,
+            spaces[k],
+            gen,
+        )
+        counts[k] = cnt
+        sums[k] = csum
+        stopped[k] = stop
+        ran[k] = True
+    return counts, sums, stopped, ran
 
 
 @njit(cache=True, nogil=True)
@@ -389,6 +424,15 @@ def _select_all(
     sizes = np.zeros(n, dtype=np.int64)
     anchored = np.zeros(n, dtype=np.bool_)
     seeds = np.zeros(n, dtype=np.int64)
+    # workspaces: one for the main growth, one per hypothesis; hypothesis maps are
+    # kept at NaN / inf / False outside the pixels a growth visits, and reset there
+    main_ws = _workspace(n)
+    spaces = [_workspace(n) for _ in range(kk)]
+    hyp_t = np.full((kk, n), np.nan)
+    hyp_c = np.full((kk, n), np.inf)
+    hyp_a = np.zeros((kk, n), dtype=np.bool_)
+    members = np.zeros(n, dtype=np.bool_)
+    gen = 0
     r = 0
     # anchors seed first, with the candidate nearest to the known thickness
     seed_list = np.concatenate((anchor_pix, order))
@@ -404,12 +448,12 @@ def _select_all(
                 if np.isfinite(cand_t[s, k]) and abs(cand_t[s, k] - anchor_t[idx]) < best:
                     best = abs(cand_t[s, k] - anchor_t[idx])
                     sk = k
-        before = assigned.copy()
-        _grow(
+        gen += 1
+        size_r, base_cost, _ = _grow(
             s,
             cand_t[s, sk],
             cand_c[s, sk],
-            valid & ~before,
+            valid,
             cand_t,
             cand_c,
             h,
@@ -421,81 +465,86 @@ def _select_all(
             out_c,
             assigned,
             np.inf,
+            main_ws,
+            gen,
         )
-        members = assigned & ~before
-        for p in range(n):
-            if members[p]:
-                region[p] = r
-        sizes[r] = members.sum()
+        visit = main_ws[4]
+        for i in range(size_r):
+            region[visit[i]] = r
+            members[visit[i]] = True
+        sizes[r] = size_r
         anchored[r] = is_anchor
         seeds[r] = s
         # order hypotheses: regrow the region from the seed's other candidates
-        if not is_anchor and sizes[r] >= min_region:
-            base_cost = 0.0
-            for p in range(n):
-                if members[p]:
-                    base_cost += out_c[p]
+        if not is_anchor and size_r >= min_region:
+            # a hypothesis that exceeds the chosen one by MARGIN_CAP per pixel only
+            # says "sure": it is not grown to the end (costs are not negative)
+            gen += 1
+            counts, sums, stopped, ran = _hypotheses(
+                s,
+                sk,
+                members,
+                cand_t,
+                cand_c,
+                h,
+                w,
+                tau,
+                max_jump,
+                lm,
+                base_cost + MARGIN_CAP * size_r,
+                hyp_t,
+                hyp_c,
+                hyp_a,
+                spaces,
+                gen,
+            )
             best_cost = base_cost
             second = np.inf
             capped = False
-            best_t = np.empty(0)
-            best_c = np.empty(0)
+            best_k = -1
             for k in range(kk):
-                if k == sk or not np.isfinite(cand_t[s, k]):
+                if not ran[k]:
                     continue
-                ht = np.full(n, np.nan)
-                hc = np.full(n, np.inf)
-                ha = ~members
-                # a hypothesis whose partial cost already exceeds the second best can
-                # be neither best nor second (costs are not negative), and one that
-                # exceeds the best by MARGIN_CAP per pixel only says "sure": stop it
-                bound = min(second, best_cost + MARGIN_CAP * sizes[r])
-                cnt, csum, stopped = _grow(
-                    s,
-                    cand_t[s, k],
-                    cand_c[s, k],
-                    members,
-                    cand_t,
-                    cand_c,
-                    h,
-                    w,
-                    tau,
-                    max_jump,
-                    lm,
-                    ht,
-                    hc,
-                    ha,
-                    bound,
-                )
-                if stopped:
-                    capped |= bound < second
+                if stopped[k]:
+                    capped = True
                     continue
                 # a hypothesis that merges back into the chosen labelling is no alternative
                 differ = 0
-                for p in range(n):
-                    if members[p] and np.isfinite(ht[p]) and abs(ht[p] - out_t[p]) > 0.6 * max_jump:
+                for i in range(size_r):
+                    p = visit[i]
+                    if np.isfinite(hyp_t[k, p]) and abs(hyp_t[k, p] - out_t[p]) > 0.6 * max_jump:
                         differ += 1
-                if differ < 0.5 * sizes[r]:
+                if differ < 0.5 * size_r:
                     continue
-                total = csum + (sizes[r] - cnt) * miss_cost
+                total = sums[k] + (size_r - counts[k]) * miss_cost
                 if total < best_cost:
                     second = best_cost
                     best_cost = total
-                    best_t = ht
-                    best_c = hc
+                    best_k = k
                 elif total < second:
                     second = total
-            if best_t.shape[0]:
+            if best_k >= 0:
                 # adopt the better hypothesis; pixels it could not reach keep their value
-                for p in range(n):
-                    if members[p] and np.isfinite(best_t[p]):
-                        out_t[p] = best_t[p]
-                        out_c[p] = best_c[p]
-            margins[r] = (second - best_cost) / sizes[r] if np.isfinite(second) else 1e9
+                for i in range(size_r):
+                    p = visit[i]
+                    if np.isfinite(hyp_t[best_k, p]):
+                        out_t[p] = hyp_t[best_k, p]
+                        out_c[p] = hyp_c[best_k, p]
+            margins[r] = (second - best_cost) / size_r if np.isfinite(second) else 1e9
             if capped:
                 margins[r] = min(margins[r], MARGIN_CAP)
+            for k in range(kk):  # reset the hypothesis maps where they were written
+                if ran[k]:
+                    hv = spaces[k][4]
+                    for i in range(counts[k]):
+                        p = hv[i]
+                        hyp_t[k, p] = np.nan
+                        hyp_c[k, p] = np.inf
+                        hyp_a[k, p] = False
         else:
             margins[r] = 1e9 if is_anchor else 0.0
+        for i in range(size_r):
+            members[visit[i]] = False
         r += 1
     return out_t, out_c, region, margins[:r], sizes[:r], anchored[:r], seeds[:r]
 
