@@ -32,7 +32,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from ..matching.candidates import _refine
 from ..matching.space import _dist
@@ -242,10 +242,9 @@ def _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm):
 
 
 @njit(cache=True)
-def _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen):
-    """:func:`_best_choice`, remembered per pixel (in workspace ``ws`` for growth
-    number ``gen``) for the last prediction asked."""
-    memo, memo_gen = ws[2], ws[3]
+def _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo, memo_gen, gen):
+    """:func:`_best_choice`, remembered per pixel (``memo``, valid where ``memo_gen``
+    is this growth's number ``gen``) for the last prediction asked."""
     if memo_gen[p] == gen and memo[p, 0] == pred:
         return memo[p, 1], memo[p, 2], memo[p, 3]
     t, c, score = _best_choice(p, pred, cand_t, cand_c, tau, max_jump, lm)
@@ -296,7 +295,7 @@ def _grow(
     The assigned pixels are listed, in order, in the workspace's visit list
     (``ws[4][:count]``); ``gen`` is a number unique to this growth (> 0).
     """
-    keys, vals, visit = ws[0], ws[1], ws[4]
+    keys, vals, memo, memo_gen, visit = ws
     size = 0
     out_t[seed_p] = seed_t
     out_c[seed_p] = seed_c
@@ -305,14 +304,30 @@ def _grow(
     count = 1
     cost_sum = seed_c
     size = _push_neighbours(
-        seed_p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
+        seed_p,
+        h,
+        w,
+        allowed,
+        assigned,
+        keys,
+        vals,
+        size,
+        cand_t,
+        cand_c,
+        out_t,
+        tau,
+        max_jump,
+        lm,
+        memo,
+        memo_gen,
+        gen,
     )
     while size > 0:
         key, p, size = _heap_pop(keys, vals, size)
         if assigned[p]:
             continue
         pred = _predict(p, h, w, out_t, assigned)
-        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen)
+        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo, memo_gen, gen)
         if not np.isfinite(score):
             continue  # may be reached again from another side
         if score > key + 1e-12:
@@ -329,16 +344,47 @@ def _grow(
         if cost_sum > abort_cost:
             return count, cost_sum, True
         size = _push_neighbours(
-            p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
+            p,
+            h,
+            w,
+            allowed,
+            assigned,
+            keys,
+            vals,
+            size,
+            cand_t,
+            cand_c,
+            out_t,
+            tau,
+            max_jump,
+            lm,
+            memo,
+            memo_gen,
+            gen,
         )
     return count, cost_sum, False
 
 
 @njit(cache=True)
 def _push_neighbours(
-    p, h, w, allowed, assigned, size, cand_t, cand_c, out_t, tau, max_jump, lm, ws, gen
+    p,
+    h,
+    w,
+    allowed,
+    assigned,
+    keys,
+    vals,
+    size,
+    cand_t,
+    cand_c,
+    out_t,
+    tau,
+    max_jump,
+    lm,
+    memo,
+    memo_gen,
+    gen,
 ):
-    keys, vals = ws[0], ws[1]
     y, x = p // w, p % w
     for dy, dx in ((-1, 0), (1, 0), (0, -1), (0, 1)):
         y1, x1 = y + dy, x + dx
@@ -348,54 +394,22 @@ def _push_neighbours(
         if assigned[q] or not allowed[q]:
             continue
         pred = _predict(q, h, w, out_t, assigned)
-        t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, ws, gen)
+        t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, memo, memo_gen, gen)
         if not np.isfinite(score) or size >= keys.shape[0]:
             continue
         size = _heap_push(keys, vals, size, score, q)
     return size
 
 
-@njit(cache=True, parallel=True, nogil=True)
-def _hypotheses(
-    s, sk, members, cand_t, cand_c, h, w, tau, max_jump, lm, bound, hyp_t, hyp_c, hyp_a, spaces, gen
-):
-    """Regrow a region from each of its seed's other candidates, in parallel.
-
-    Returns per candidate: pixels reached, cost sum, stopped early, and whether
-    it runs valid (a finite candidate other than the chosen one ``sk``).
-    """
-    kk = cand_t.shape[1]
-    counts = np.zeros(kk, dtype=np.int64)
-    sums = np.zeros(kk)
-    stopped = np.zeros(kk, dtype=np.bool_)
-    ran = np.zeros(kk, dtype=np.bool_)
-    for k in prange(kk):
-        if k == sk or not np.isfinite(cand_t[s, k]):
-            continue
-        cnt, csum, stop = _grow(
-            s,
-            cand_t[s, k],
-            cand_c[s, k],
-            members,
-            cand_t,
-            cand_c,
-            h,
-            w,
-            tau,
-            max_jump,
-            lm,
-            hyp_t[k],
-            hyp_c[k],
-            hyp_a[k],
-            bound,
-            spaces[k],
-            gen,
-        )
-        counts[k] = cnt
-        sums[k] = csum
-        stopped[k] = stop
-        ran[k] = True
-    return counts, sums, stopped, ran
+@njit(cache=True)
+def _reset(ws, count, hyp_t, hyp_c, hyp_a):
+    """Put a hypothesis's maps back to NaN / inf / False where its growth wrote."""
+    visit = ws[4]
+    for i in range(count):
+        p = visit[i]
+        hyp_t[p] = np.nan
+        hyp_c[p] = np.inf
+        hyp_a[p] = False
 
 
 @njit(cache=True, nogil=True)
@@ -424,13 +438,15 @@ def _select_all(
     sizes = np.zeros(n, dtype=np.int64)
     anchored = np.zeros(n, dtype=np.bool_)
     seeds = np.zeros(n, dtype=np.int64)
-    # workspaces: one for the main growth, one per hypothesis; hypothesis maps are
-    # kept at NaN / inf / False outside the pixels a growth visits, and reset there
+    # workspaces: one for the main growth and two for hypotheses (the one being grown
+    # and the best so far); hypothesis maps stay NaN / inf / False outside the pixels
+    # a growth visits, and are reset there (work per region, not per photo)
     main_ws = _workspace(n)
-    spaces = [_workspace(n) for _ in range(kk)]
-    hyp_t = np.full((kk, n), np.nan)
-    hyp_c = np.full((kk, n), np.inf)
-    hyp_a = np.zeros((kk, n), dtype=np.bool_)
+    hyp_ws = [_workspace(n), _workspace(n)]
+    hyp_t = np.full((2, n), np.nan)
+    hyp_c = np.full((2, n), np.inf)
+    hyp_a = np.zeros((2, n), dtype=np.bool_)
+    hyp_count = np.zeros(2, dtype=np.int64)
     members = np.zeros(n, dtype=np.bool_)
     gen = 0
     r = 0
@@ -477,70 +493,85 @@ def _select_all(
         seeds[r] = s
         # order hypotheses: regrow the region from the seed's other candidates
         if not is_anchor and size_r >= min_region:
-            # a hypothesis that exceeds the chosen one by MARGIN_CAP per pixel only
-            # says "sure": it is not grown to the end (costs are not negative)
-            gen += 1
-            counts, sums, stopped, ran = _hypotheses(
-                s,
-                sk,
-                members,
-                cand_t,
-                cand_c,
-                h,
-                w,
-                tau,
-                max_jump,
-                lm,
-                base_cost + MARGIN_CAP * size_r,
-                hyp_t,
-                hyp_c,
-                hyp_a,
-                spaces,
-                gen,
-            )
             best_cost = base_cost
             second = np.inf
             capped = False
-            best_k = -1
+            best_b = -1  # buffer holding the best hypothesis (-1: the chosen labelling)
+            cur = 0
             for k in range(kk):
-                if not ran[k]:
+                if k == sk or not np.isfinite(cand_t[s, k]):
                     continue
-                if stopped[k]:
-                    capped = True
-                    continue
-                # a hypothesis that merges back into the chosen labelling is no alternative
-                differ = 0
-                for i in range(size_r):
-                    p = visit[i]
-                    if np.isfinite(hyp_t[k, p]) and abs(hyp_t[k, p] - out_t[p]) > 0.6 * max_jump:
-                        differ += 1
-                if differ < 0.5 * size_r:
-                    continue
-                total = sums[k] + (size_r - counts[k]) * miss_cost
-                if total < best_cost:
-                    second = best_cost
-                    best_cost = total
-                    best_k = k
-                elif total < second:
-                    second = total
-            if best_k >= 0:
+                # a hypothesis whose partial cost already exceeds the second best can
+                # be neither best nor second (costs are not negative), and one that
+                # exceeds the best by MARGIN_CAP per pixel only says "sure": stop it
+                bound = min(second, best_cost + MARGIN_CAP * size_r)
+                gen += 1
+                cnt, csum, stopped = _grow(
+                    s,
+                    cand_t[s, k],
+                    cand_c[s, k],
+                    members,
+                    cand_t,
+                    cand_c,
+                    h,
+                    w,
+                    tau,
+                    max_jump,
+                    lm,
+                    hyp_t[cur],
+                    hyp_c[cur],
+                    hyp_a[cur],
+                    bound,
+                    hyp_ws[cur],
+                    gen,
+                )
+                hyp_count[cur] = cnt
+                keep = False
+                if stopped:
+                    capped |= bound < second
+                else:
+                    # a hypothesis that merges back into the chosen labelling is no
+                    # alternative
+                    differ = 0
+                    for i in range(size_r):
+                        p = visit[i]
+                        t_h = hyp_t[cur, p]
+                        if np.isfinite(t_h) and abs(t_h - out_t[p]) > 0.6 * max_jump:
+                            differ += 1
+                    if differ >= 0.5 * size_r:
+                        total = csum + (size_r - cnt) * miss_cost
+                        if total < best_cost:
+                            second = best_cost
+                            best_cost = total
+                            keep = True
+                        elif total < second:
+                            second = total
+                if keep:
+                    if best_b >= 0:  # the former best is no longer needed
+                        _reset(
+                            hyp_ws[best_b],
+                            hyp_count[best_b],
+                            hyp_t[best_b],
+                            hyp_c[best_b],
+                            hyp_a[best_b],
+                        )
+                    best_b = cur
+                    cur = 1 - cur
+                else:
+                    _reset(hyp_ws[cur], cnt, hyp_t[cur], hyp_c[cur], hyp_a[cur])
+            if best_b >= 0:
                 # adopt the better hypothesis; pixels it could not reach keep their value
                 for i in range(size_r):
                     p = visit[i]
-                    if np.isfinite(hyp_t[best_k, p]):
-                        out_t[p] = hyp_t[best_k, p]
-                        out_c[p] = hyp_c[best_k, p]
+                    if np.isfinite(hyp_t[best_b, p]):
+                        out_t[p] = hyp_t[best_b, p]
+                        out_c[p] = hyp_c[best_b, p]
+                _reset(
+                    hyp_ws[best_b], hyp_count[best_b], hyp_t[best_b], hyp_c[best_b], hyp_a[best_b]
+                )
             margins[r] = (second - best_cost) / size_r if np.isfinite(second) else 1e9
             if capped:
                 margins[r] = min(margins[r], MARGIN_CAP)
-            for k in range(kk):  # reset the hypothesis maps where they were written
-                if ran[k]:
-                    hv = spaces[k][4]
-                    for i in range(counts[k]):
-                        p = hv[i]
-                        hyp_t[k, p] = np.nan
-                        hyp_c[k, p] = np.inf
-                        hyp_a[k, p] = False
         else:
             margins[r] = 1e9 if is_anchor else 0.0
         for i in range(size_r):
