@@ -307,8 +307,8 @@ def measure(
         )
     g0 = float(np.percentile((lin_c @ _Y709)[valid_c], 99))
     g0 = g0 / float(np.percentile(y_tab, 99))
-    rgb_c = table.rgb[::stride]
-    e_chroma = encode(rgb_c * (0.4 / np.maximum(rgb_c @ _Y709, 0.01))[:, None])
+    e_chroma_full = encode(table.rgb * (0.4 / np.maximum(y_tab, 0.01))[:, None])
+    e_chroma = e_chroma_full[::stride]
     gain = None
     passes = (
         INTENSITY_WEIGHT_CHROMA,
@@ -371,17 +371,18 @@ def measure(
             # first pass: every colour scaled to one luminance, so the unknown exposure
             # cannot matter (chromaticity only); the gain field is learnt from its result
             q_c = encode(lin_c * (0.4 / np.maximum(lin_c @ _Y709, 1e-4))[..., None])
-            e_pass = e_chroma
+            e_pass, e_scan = e_chroma, e_chroma_full
         else:
             q_c = encode(lin_c / gain_c[..., None])
-            e_pass = e_coarse
-        cands = find_candidates(
+            e_pass, e_scan = e_coarse, e_tab
+        cands = find_candidates(  # a ~4 nm scan, each minimum refined on the full table
             q_c[valid_c],
-            e_pass,
+            e_scan,
             t0_nm=t0,
-            step_nm=step * stride,
+            step_nm=step,
             k=MeasureSettings.k,
             intensity_weight=lam,
+            stride=2 * stride,
         )
         noise = max(float(np.median(cands.cost[:, 0])), 3 * 0.002**2)
         ct = np.full((hc, wc, MeasureSettings.k), np.nan)

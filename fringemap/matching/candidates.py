@@ -123,20 +123,11 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
                 dp = d[i + 1] if i + 1 < n else np.inf
                 if not (d0 <= dm and d0 < dp):
                     continue
-                if stride > 1:
-                    pos, c = _descend(q0, q1, q2, qq, mu, e_full, ee_full, i * stride, d0, stride)
-                    t = t0 + pos * step
-                    dup = False
-                    for j in range(k):
-                        if abs(out_t[p, j] - t) < 0.5 * step:
-                            dup = True
-                    if dup:
-                        continue
-                elif i == 0 or i == n - 1:
-                    t, c = t0 + i * step, d0
+                if i == 0 or i == n - 1:
+                    t, c = t0 + i * stride * step, d0
                 else:
                     off, c = _refine(dm, d0, dp)
-                    t = t0 + (i + off) * step
+                    t = t0 + (i + off) * stride * step
                 # insert into the sorted list of the k best
                 if c < out_c[p, k - 1]:
                     j = k - 1
@@ -146,6 +137,40 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
                         j -= 1
                     out_c[p, j] = c
                     out_t[p, j] = t
+            if stride > 1:
+                _refine_on_full_table(
+                    p, q0, q1, q2, qq, mu, e_full, ee_full, t0, step, stride, out_t, out_c
+                )
+
+
+@njit(cache=True)
+def _refine_on_full_table(p, q0, q1, q2, qq, mu, e, ee, t0, step, stride, out_t, out_c):
+    """Follow each of pixel p's candidates (from the strided scan) downhill on the full
+    table, refine it there, drop duplicates and sort the list again (best first)."""
+    k = out_t.shape[1]
+    n = e.shape[0]
+    for j in range(k):
+        if not np.isfinite(out_t[p, j]):
+            continue
+        i = min(n - 1, max(0, int(round((out_t[p, j] - t0) / step))))
+        di = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
+        pos, c = _descend(q0, q1, q2, qq, mu, e, ee, i, di, 2 * stride)
+        out_t[p, j] = t0 + pos * step
+        out_c[p, j] = c
+    for j in range(k):  # two scan minima that lead to the same minimum: keep one
+        for j2 in range(j):
+            if np.isfinite(out_t[p, j]) and abs(out_t[p, j] - out_t[p, j2]) < 0.5 * step:
+                out_t[p, j] = np.nan
+                out_c[p, j] = np.inf
+    for j in range(1, k):  # insertion sort by cost
+        c, t = out_c[p, j], out_t[p, j]
+        m = j
+        while m > 0 and out_c[p, m - 1] > c:
+            out_c[p, m] = out_c[p, m - 1]
+            out_t[p, m] = out_t[p, m - 1]
+            m -= 1
+        out_c[p, m] = c
+        out_t[p, m] = t
 
 
 def find_candidates(
@@ -173,9 +198,10 @@ def find_candidates(
     intensity_weight : float
         λ of :mod:`fringemap.matching.space`.
     stride : int
-        Scan every ``stride``-th entry only, then follow each minimum found
-        downhill on the full table and refine it there: about ``stride`` times
-        less work where the minima are wider than the stride (1: every entry).
+        Scan every ``stride``-th entry only (the ``k`` best minima of the scan,
+        by a parabola through each), then follow each of them downhill on the
+        full table and refine it there: about ``stride`` times less work where
+        the minima are wider than the stride (1: every entry).
     """
     if int(stride) < 1:
         raise OptionError(f"expected a stride >= 1, got {stride!r}", where="stride")
