@@ -51,6 +51,8 @@ class JobOutcome:
     summary: dict = field(default_factory=dict)
     written: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    #: the traceback of a failure (shown with ``--debug``); empty otherwise
+    detail: str = ""
 
 
 def _verdict(stats_path) -> bool | None:
@@ -127,6 +129,8 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
                 _remove_quietly(written.values())  # a failed photo leaves none of its outputs
                 raise
     except FringemapError as exc:
+        import traceback
+
         return JobOutcome(
             path=str(path),
             stem=stem,
@@ -134,6 +138,7 @@ def run_job(path: str | Path, stem: str, job: MapJob, *, table=None, camera=None
             reason=str(exc),
             exit_code=exc.exit_code,
             seconds=time.perf_counter() - start,
+            detail=traceback.format_exc(),
         )
     s = result.stats
     summary = {

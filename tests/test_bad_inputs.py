@@ -1157,6 +1157,17 @@ def test_debug_shows_the_traceback_and_keeps_the_exit_code(workspace, capsys):
     assert err.splitlines()[-1].startswith(ERROR + "empty.png: is empty")
 
 
+def test_debug_shows_the_traceback_of_a_photo_that_fails_in_map(workspace, capsys):
+    (workspace / "empty.png").write_bytes(b"")
+    argv = ["map", "empty.png", *STACK, *OUT]
+    assert main(argv) == 3
+    assert "Traceback" not in capsys.readouterr().err
+    assert main([*argv, "--debug"]) == 3
+    err = capsys.readouterr().err
+    assert "Traceback (most recent call last)" in err and "InputFileError" in err
+    assert err.splitlines()[-1].startswith(ERROR + "empty.png: is empty")
+
+
 def test_damaged_video_in_a_real_process(workspace):
     """The video decoder's own complaints never reach the terminal: one line, exit 3."""
     (workspace / "clip.mp4").write_bytes(b"\x00\x00\x00\x18ftypmp42" + b"\x01" * 200)

@@ -38,6 +38,8 @@ def cmd_map(args) -> int:
         bar.update(1)
         if outcome.status != "ok":
             failed.append(outcome)
+            if getattr(args, "debug", False) and outcome.detail:
+                print(outcome.detail, end="", file=sys.stderr)
             print(f"fringemap: error: {outcome.reason}", file=sys.stderr)
             continue
         if not args.quiet:
