@@ -125,14 +125,30 @@ def _with_options(recipe, args):
     )
 
 
+class _NoBar:
+    """What :func:`progress_bar` returns when no bar is shown: lines still print."""
+
+    def update(self, n: int = 1) -> None:
+        pass
+
+    def write(self, line: str) -> None:
+        print(line)
+
+    def close(self) -> None:
+        pass
+
+
 def progress_bar(total: int, desc: str, quiet: bool):
+    """A tqdm bar on stderr for ``total`` photos; none (tqdm not even loaded) when quiet
+    or for a single photo. ``write`` prints a line on stdout either way."""
+    if quiet or total <= 1:
+        return _NoBar()
     from tqdm import tqdm
 
     return tqdm(
         total=total,
         desc=desc,
         unit="photo",
-        disable=quiet or total <= 1,
         file=sys.stderr,
         dynamic_ncols=True,
     )
