@@ -129,6 +129,8 @@ def _stages(path: Path, repeat: int) -> dict:
             t0 = time.perf_counter()
             write_map_outputs(result, tmp, "bench")
             add("write outputs", time.perf_counter() - t0)
+    # the pipeline's peak, before the floor below decodes a float copy of the photo
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     linear = photo.linear
     floor = []
     for _ in range(repeat):
@@ -138,6 +140,7 @@ def _stages(path: Path, repeat: int) -> dict:
     med = {k: float(np.median(v)) for k, v in rows.items()}
     med["memory pass (floor)"] = float(np.median(floor))
     med["pixels"] = int(linear.shape[0] * linear.shape[1])
+    med["peak_rss_mb"] = peak_mb
     return med
 
 
@@ -187,10 +190,30 @@ def colour_table_seconds(repeat: int) -> dict:
     }
 
 
+def first_touch_seconds_per_gb(mb: int = 256) -> float:
+    """Seconds per GB to write memory this process has never touched (page faults).
+
+    On some virtual machines this is far slower than writing memory again, so a
+    fresh process pays for its peak memory: part of a one-photo ``map`` run.
+    """
+    t0 = time.perf_counter()
+    buf = np.empty(mb * 2**20 // 4, dtype=np.float32)
+    buf.fill(1.0)
+    seconds = time.perf_counter() - t0
+    del buf
+    return seconds * 1024.0 / mb
+
+
+def _first_touch_in_fresh_process() -> float:
+    """:func:`first_touch_seconds_per_gb` measured in a new process (not this one's peak)."""
+    code = "from fringemap.bench import first_touch_seconds_per_gb as f; print(f())"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    return float(out.stdout.strip().splitlines()[-1])
+
+
 def _child(path: str, repeat: int) -> None:
     """Run in a fresh process: stage timings and peak memory as JSON on stdout."""
     med = _stages(Path(path), repeat)
-    med["peak_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     print(json.dumps(med))
 
 
@@ -242,8 +265,11 @@ def main(argv: list[str] | None = None) -> int:
         compute = med["compute (measure, decode excluded)"]
         print(f"\n{mp} MP ({med['pixels']:,} px), medians of {args.repeat}:")
         for k, v in med.items():
-            if k not in ("pixels", "peak_rss_mb", "brute_force_s"):
+            if k not in ("pixels", "peak_rss_mb", "brute_force_s") and "per GB" not in k:
                 print(f"  {k:<48} {v:8.3f} s")
+        touch = _first_touch_in_fresh_process()
+        med["first touch of fresh memory (s per GB)"] = touch
+        print(f"  {'first touch of fresh memory (own process)':<48} {touch:8.2f} s per GB")
         print(f"  {'pixels per second (compute)':<48} {med['pixels'] / compute:12,.0f}")
         print(f"  {'peak memory (fresh process)':<48} {med['peak_rss_mb']:8.0f} MB")
         print(
