@@ -1,9 +1,11 @@
 """Per-pixel reasons and confidence, from the match and the order decisions.
 
-One numba pass over the photo turns the full-resolution match (thickness,
-colour cost), the masks (ROI, saturated, dark, background) and the coarse
-order decisions into the final thickness (NaN where not trustworthy), a
-reason code (:data:`fringemap.result.REASONS`) and a confidence in 0-1::
+:func:`mask_reasons` first turns the masks (ROI, saturated, dark, background)
+into one uint8 map of reason codes (0 where a pixel is usable); after the
+match, :func:`classify` fills in the usable pixels in one numba pass from the
+full-resolution match (thickness, colour cost) and the coarse order decisions:
+the final thickness (NaN where not trustworthy), a reason code
+(:data:`fringemap.result.REASONS`) and a confidence in 0-1::
 
     confidence = exp(−cost / (8 σ²)) · 1 / (1 + (σ_t / 5 nm)²) · clip(0.5 + margin/4, 0.5, 1)
 
