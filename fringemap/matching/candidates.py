@@ -52,10 +52,11 @@ def _refine(dm, d0, dp):
     return off, d0 - 0.25 * (dm - dp) * off
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _descend(q0, q1, q2, qq, mu, e, ee, j, dj, limit):
-    """From entry j (distance dj) downhill on the table to a local minimum (at most
-    ``limit`` entries away), refined by a parabola: (fractional index, distance)."""
+    """From table entry j (distance dj) downhill to the nearest local minimum of the
+    distance, at most ``limit`` entries away, refined by a parabola through it and its
+    neighbours: (entry, offset in -0.5..0.5, distance). Shared by every table search."""
     n = e.shape[0]
     best = dj
     dm = (
@@ -85,8 +86,8 @@ def _descend(q0, q1, q2, qq, mu, e, ee, j, dj, limit):
                 dp = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
     if 0 < bi < n - 1:
         off, c = _refine(dm, best, dp)
-        return bi + off, c
-    return float(bi), best
+        return bi, off, c
+    return bi, 0.0, best
 
 
 @njit(cache=True, parallel=True, nogil=True)
@@ -128,49 +129,51 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
                 else:
                     off, c = _refine(dm, d0, dp)
                     t = t0 + (i + off) * stride * step
-                # insert into the sorted list of the k best
-                if c < out_c[p, k - 1]:
-                    j = k - 1
-                    while j > 0 and out_c[p, j - 1] > c:
-                        out_c[p, j] = out_c[p, j - 1]
-                        out_t[p, j] = out_t[p, j - 1]
-                        j -= 1
-                    out_c[p, j] = c
-                    out_t[p, j] = t
+                _insert(p, t, c, out_t, out_c)
             if stride > 1:
                 _refine_on_full_table(
                     p, q0, q1, q2, qq, mu, e_full, ee_full, t0, step, stride, out_t, out_c
                 )
 
 
+@njit(cache=True, inline="always")
+def _insert(p, t, c, out_t, out_c):
+    """Put (t, c) into pixel p's list of the k best, kept sorted by cost."""
+    k = out_t.shape[1]
+    if c < out_c[p, k - 1]:
+        j = k - 1
+        while j > 0 and out_c[p, j - 1] > c:
+            out_c[p, j] = out_c[p, j - 1]
+            out_t[p, j] = out_t[p, j - 1]
+            j -= 1
+        out_c[p, j] = c
+        out_t[p, j] = t
+
+
 @njit(cache=True)
 def _refine_on_full_table(p, q0, q1, q2, qq, mu, e, ee, t0, step, stride, out_t, out_c):
     """Follow each of pixel p's candidates (from the strided scan) downhill on the full
-    table, refine it there, drop duplicates and sort the list again (best first)."""
+    table and refine it there; the list is rebuilt, best first, without duplicates (two
+    scan minima that lead to the same minimum)."""
     k = out_t.shape[1]
     n = e.shape[0]
+    found_t = out_t[p].copy()
     for j in range(k):
-        if not np.isfinite(out_t[p, j]):
+        out_t[p, j] = np.nan
+        out_c[p, j] = np.inf
+    for j in range(k):
+        if not np.isfinite(found_t[j]):
             continue
-        i = min(n - 1, max(0, int(round((out_t[p, j] - t0) / step))))
+        i = min(n - 1, max(0, int(round((found_t[j] - t0) / step))))
         di = _dist(q0, q1, q2, qq, e[i, 0], e[i, 1], e[i, 2], ee[i], mu)
-        pos, c = _descend(q0, q1, q2, qq, mu, e, ee, i, di, 2 * stride)
-        out_t[p, j] = t0 + pos * step
-        out_c[p, j] = c
-    for j in range(k):  # two scan minima that lead to the same minimum: keep one
-        for j2 in range(j):
-            if np.isfinite(out_t[p, j]) and abs(out_t[p, j] - out_t[p, j2]) < 0.5 * step:
-                out_t[p, j] = np.nan
-                out_c[p, j] = np.inf
-    for j in range(1, k):  # insertion sort by cost
-        c, t = out_c[p, j], out_t[p, j]
-        m = j
-        while m > 0 and out_c[p, m - 1] > c:
-            out_c[p, m] = out_c[p, m - 1]
-            out_t[p, m] = out_t[p, m - 1]
-            m -= 1
-        out_c[p, m] = c
-        out_t[p, m] = t
+        bi, off, c = _descend(q0, q1, q2, qq, mu, e, ee, i, di, 2 * stride)
+        t = t0 + (bi + off) * step
+        duplicate = False
+        for m in range(k):
+            if abs(out_t[p, m] - t) < 0.5 * step:  # NaN compares False
+                duplicate = True
+        if not duplicate:
+            _insert(p, t, c, out_t, out_c)
 
 
 def find_candidates(

@@ -20,7 +20,7 @@ import numpy as np
 from numba import njit, prange
 
 from ..colour.transfer import srgb_encode
-from .candidates import _refine
+from .candidates import _descend
 from .space import _dist
 
 __all__ = [
@@ -113,6 +113,18 @@ def block_mean(img, lut, usable, f):
     return mean, frac
 
 
+@njit(cache=True, inline="always")
+def _take_nearer(y, x, y1, x1, sy, sx, d2):
+    """Adopt neighbour (y1, x1)'s nearest seed for (y, x) if it is nearer."""
+    h, w = d2.shape
+    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
+        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
+        if dd < d2[y, x]:
+            d2[y, x] = dd
+            sy[y, x] = sy[y1, x1]
+            sx[y, x] = sx[y1, x1]
+
+
 @njit(cache=True)
 def _nearest_seeds(valid):
     """Per pixel, the coordinates of a nearest ``valid`` pixel (Euclidean), by two
@@ -133,23 +145,11 @@ def _nearest_seeds(valid):
         for y in range(h):  # forward: from the row above and the left
             for x in range(w):
                 for dy, dx in ((-1, -1), (-1, 0), (-1, 1), (0, -1)):
-                    y1, x1 = y + dy, x + dx
-                    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
-                        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
-                        if dd < d2[y, x]:
-                            d2[y, x] = dd
-                            sy[y, x] = sy[y1, x1]
-                            sx[y, x] = sx[y1, x1]
+                    _take_nearer(y, x, y + dy, x + dx, sy, sx, d2)
         for y in range(h - 1, -1, -1):  # backward: from the row below and the right
             for x in range(w - 1, -1, -1):
                 for dy, dx in ((1, 1), (1, 0), (1, -1), (0, 1)):
-                    y1, x1 = y + dy, x + dx
-                    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
-                        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
-                        if dd < d2[y, x]:
-                            d2[y, x] = dd
-                            sy[y, x] = sy[y1, x1]
-                            sx[y, x] = sx[y1, x1]
+                    _take_nearer(y, x, y + dy, x + dx, sy, sx, d2)
     return sy, sx
 
 
@@ -216,34 +216,8 @@ def _fullres_kernel(
             c = min(n - 1, max(0, c))
             # descend the distance along the table from the predicted entry to the
             # nearest local minimum (at most 2·half entries away)
-            best = _d_at(c, q0, q1, q2, qq, e, ee, mu)
-            dm = _d_at(c - 1, q0, q1, q2, qq, e, ee, mu) if c > 0 else np.inf
-            dp = _d_at(c + 1, q0, q1, q2, qq, e, ee, mu) if c < n - 1 else np.inf
-            bi = c
-            if dm < best and dm <= dp:
-                lo = max(0, c - 2 * half)
-                while True:
-                    dp, best, bi = best, dm, bi - 1
-                    if bi <= lo:
-                        dm = _d_at(bi - 1, q0, q1, q2, qq, e, ee, mu) if bi > 0 else np.inf
-                        break
-                    dm = _d_at(bi - 1, q0, q1, q2, qq, e, ee, mu)
-                    if dm >= best:
-                        break
-            elif dp < best:
-                hi = min(n - 1, c + 2 * half)
-                while True:
-                    dm, best, bi = best, dp, bi + 1
-                    if bi >= hi:
-                        dp = _d_at(bi + 1, q0, q1, q2, qq, e, ee, mu) if bi < n - 1 else np.inf
-                        break
-                    dp = _d_at(bi + 1, q0, q1, q2, qq, e, ee, mu)
-                    if dp >= best:
-                        break
-            if 0 < bi < n - 1:
-                off, cost = _refine(dm, best, dp)
-            else:
-                off, cost = 0.0, best
+            d0 = _d_at(c, q0, q1, q2, qq, e, ee, mu)
+            bi, off, cost = _descend(q0, q1, q2, qq, mu, e, ee, c, d0, 2 * half)
             out_t[y, x] = t0 + (bi + off) * step
             out_c[y, x] = cost
             # far from the prediction: a step or a scratch the coarse map smoothed over

@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from ..matching.candidates import _refine
+from ..matching.candidates import _descend
 from ..matching.space import _dist
 
 __all__ = ["OrderSelection", "select_orders"]
@@ -155,49 +155,11 @@ def _local_min(p, pred, q, e, ee, lam, t0, step, half, noise):
     qq = q0 * q0 + q1 * q1 + q2 * q2
     mu = lam * qq
     c = int(round((pred - t0) / step))
-    if c < 0 or c > n - 1:
-        if c < -half or c > n - 1 + half:
-            return np.nan, np.inf
-        c = min(n - 1, max(0, c))
-    best = _dist(q0, q1, q2, qq, e[c, 0], e[c, 1], e[c, 2], ee[c], mu)
-    dm = np.inf
-    dp = np.inf
-    if c > 0:
-        dm = _dist(q0, q1, q2, qq, e[c - 1, 0], e[c - 1, 1], e[c - 1, 2], ee[c - 1], mu)
-    if c < n - 1:
-        dp = _dist(q0, q1, q2, qq, e[c + 1, 0], e[c + 1, 1], e[c + 1, 2], ee[c + 1], mu)
-    bi = c
-    if dm < best and dm <= dp:
-        lo = max(0, c - half)
-        while True:
-            dp, best, bi = best, dm, bi - 1
-            if bi <= lo:
-                dm = np.inf
-                if bi > 0:
-                    j = bi - 1
-                    dm = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
-                break
-            j = bi - 1
-            dm = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
-            if dm >= best:
-                break
-    elif dp < best:
-        hi = min(n - 1, c + half)
-        while True:
-            dm, best, bi = best, dp, bi + 1
-            if bi >= hi:
-                dp = np.inf
-                if bi < n - 1:
-                    j = bi + 1
-                    dp = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
-                break
-            j = bi + 1
-            dp = _dist(q0, q1, q2, qq, e[j, 0], e[j, 1], e[j, 2], ee[j], mu)
-            if dp >= best:
-                break
-    off = 0.0
-    if 0 < bi < n - 1:
-        off, best = _refine(dm, best, dp)
+    if c < -half or c > n - 1 + half:
+        return np.nan, np.inf
+    c = min(n - 1, max(0, c))
+    d0 = _dist(q0, q1, q2, qq, e[c, 0], e[c, 1], e[c, 2], ee[c], mu)
+    bi, off, best = _descend(q0, q1, q2, qq, mu, e, ee, c, d0, half)
     return t0 + (bi + off) * step, best / noise
 
 
@@ -297,44 +259,11 @@ def _grow(
     """
     keys, vals, memo, memo_gen, visit = ws
     size = 0
-    out_t[seed_p] = seed_t
-    out_c[seed_p] = seed_c
-    assigned[seed_p] = True
-    visit[0] = seed_p
-    count = 1
-    cost_sum = seed_c
-    size = _push_neighbours(
-        seed_p,
-        h,
-        w,
-        allowed,
-        assigned,
-        keys,
-        vals,
-        size,
-        cand_t,
-        cand_c,
-        out_t,
-        tau,
-        max_jump,
-        lm,
-        memo,
-        memo_gen,
-        gen,
-    )
-    while size > 0:
-        key, p, size = _heap_pop(keys, vals, size)
-        if assigned[p]:
-            continue
-        pred = _predict(p, h, w, out_t, assigned)
-        t, c, score = _choice(p, pred, cand_t, cand_c, tau, max_jump, lm, memo, memo_gen, gen)
-        if not np.isfinite(score):
-            continue  # may be reached again from another side
-        if score > key + 1e-12:
-            # priority went stale (more neighbours assigned since): requeue
-            if size < keys.shape[0]:
-                size = _heap_push(keys, vals, size, score, p)
-            continue
+    count = 0
+    cost_sum = 0.0
+    p, t, c = seed_p, seed_t, seed_c
+    while True:
+        # assign p, then queue its neighbours and take the cheapest that is still current
         out_t[p] = t
         out_c[p] = c
         assigned[p] = True
@@ -362,6 +291,24 @@ def _grow(
             memo_gen,
             gen,
         )
+        p = -1
+        while size > 0:
+            key, q, size = _heap_pop(keys, vals, size)
+            if assigned[q]:
+                continue
+            pred = _predict(q, h, w, out_t, assigned)
+            t, c, score = _choice(q, pred, cand_t, cand_c, tau, max_jump, lm, memo, memo_gen, gen)
+            if not np.isfinite(score):
+                continue  # may be reached again from another side
+            if score > key + 1e-12:
+                # priority went stale (more neighbours assigned since): requeue
+                if size < keys.shape[0]:
+                    size = _heap_push(keys, vals, size, score, q)
+                continue
+            p = q
+            break
+        if p < 0:
+            break
     return count, cost_sum, False
 
 
