@@ -42,7 +42,7 @@ import cv2
 import numpy as np
 import pytest
 import tifffile
-from hypothesis import HealthCheck, event, given, settings
+from hypothesis import HealthCheck, event, example, given, settings
 from hypothesis import strategies as st
 from PIL import Image
 
@@ -1269,6 +1269,7 @@ def test_truncated_photos_are_always_input_errors(cut, kind, capsys):
     suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
 )
 @given(position=st.integers(0, 10_000), value=st.integers(0, 255))
+@example(position=1751, value=0)  # once made a gain fit run off to an overflowing gain
 def test_damaged_bytes_never_crash(position, value, capsys):
     data = bytearray(good_jpg())
     data[position % len(data)] = value

@@ -17,6 +17,8 @@ import numpy as np
 
 __all__ = ["GainField", "fit_gain_field"]
 
+_LN2 = float(np.log(2.0))
+
 
 def _design(x: np.ndarray, y: np.ndarray, degree: int) -> np.ndarray:
     cols = []
@@ -40,12 +42,17 @@ class GainField:
         (H, W) of the image the coordinates are normalised to.
     residual_rms : float
         RMS of the robust residuals of ``log g`` (a fraction: 0.01 = 1 %).
+    log_limits : (float, float)
+        ``log g`` is held within these bounds: the range of the fitted samples
+        widened by a factor 2 each way, so that a polynomial fitted to a few
+        clustered samples (a damaged photo) cannot run off to absurd gains.
     """
 
     coefficients: np.ndarray
     degree: int
     shape: tuple[int, int]
     residual_rms: float
+    log_limits: tuple[float, float] = (-np.inf, np.inf)
 
     def evaluate(self, shape: tuple[int, int]) -> np.ndarray:
         """The gain on a grid of ``shape`` (H, W) covering the same image, float32."""
@@ -59,14 +66,14 @@ class GainField:
             for i in range(total + 1):
                 out += self.coefficients[c] * np.outer(ys**i, xs ** (total - i))
                 c += 1
-        return np.exp(out).astype(np.float32)
+        return np.exp(np.clip(out, *self.log_limits)).astype(np.float32)
 
     def evaluate_at(self, ys: np.ndarray, xs: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
         """The gain at pixels (ys, xs) of an image of ``shape`` (H, W), float64 (P,)."""
         h, w = shape
         y = (np.asarray(ys) + 0.5) / h * 2 - 1
         x = (np.asarray(xs) + 0.5) / w * 2 - 1
-        return np.exp(_design(x, y, self.degree) @ self.coefficients)
+        return np.exp(np.clip(_design(x, y, self.degree) @ self.coefficients, *self.log_limits))
 
 
 def fit_gain_field(
@@ -99,12 +106,13 @@ def fit_gain_field(
         value = float(np.nanmedian(samples[ok])) if ok.any() else 1.0
         coef = np.zeros((degree + 1) * (degree + 2) // 2)
         coef[0] = np.log(value)
-        return GainField(coef, degree, (h, w), float("nan"))
+        return GainField(coef, degree, (h, w), float("nan"), (coef[0] - _LN2, coef[0] + _LN2))
     # fewer pixels than needed for a high degree: lower it
     while degree > 0 and ok.sum() < 30 * (degree + 1) * (degree + 2) // 2:
         degree -= 1
     a = _design(x[ok], y[ok], degree)
     b = np.log(samples[ok])
+    limits = (float(b.min()) - _LN2, float(b.max()) + _LN2)
     w0 = weights[ok].astype(np.float64)
     wt = w0.copy()
     coef = np.zeros(a.shape[1])
@@ -119,4 +127,4 @@ def fit_gain_field(
         scale = max(1.4826 * mad, 0.003)
         u = res / (4.685 * scale)
         wt = w0 * np.where(np.abs(u) < 1, (1 - u**2) ** 2, 0.0)
-    return GainField(coef, degree, (h, w), float(scale))
+    return GainField(coef, degree, (h, w), float(scale), limits)
