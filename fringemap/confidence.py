@@ -43,11 +43,12 @@ def _classify_kernel(
     xs1,
     fxs,
     region_c,
-    f,
+    cys,
+    cxs,
     margins,
     sizes,
     faded,
-    slope,
+    slope_factor,
     t0,
     step,
     t_faded,
@@ -58,8 +59,6 @@ def _classify_kernel(
 ):
     h, w = reasons.shape
     n = faded.shape[0]
-    hc, wc = region_c.shape
-    sigma = np.sqrt(noise / 3.0)
     # thick and cost are overwritten in place by the final thickness and the confidence
     for y in prange(h):
         for x in range(w):
@@ -84,9 +83,7 @@ def _classify_kernel(
             if faded[i] or pred >= t_faded - 0.5 * step or (t >= t_max - 2 * step and t_max > t0):
                 reasons[y, x] = BEYOND
                 continue
-            cy = min(hc - 1, y // f)
-            cx = min(wc - 1, x // f)
-            reg = region_c[cy, cx]
+            reg = region_c[cys[y], cxs[x]]
             margin = 0.0
             if reg >= 0:
                 margin = margins[reg]
@@ -95,11 +92,10 @@ def _classify_kernel(
                     continue
             reasons[y, x] = MEASURED
             thick[y, x] = t
-            sig_t = sigma / max(slope[i], 1e-6)
             m = 0.5 + margin / 4.0
             if m > 1.0:
                 m = 1.0
-            conf = np.exp(-0.5 * c / (4.0 * noise)) / (1.0 + (sig_t / 5.0) ** 2) * m
+            conf = np.exp(-0.5 * c / (4.0 * noise)) * slope_factor[i] * m
             # in steps of 1/1024: finer than it can mean, and the map compresses well
             cost[y, x] = np.round(conf * CONF_STEPS) / CONF_STEPS
 
@@ -167,6 +163,11 @@ def classify(
         if a.dtype != np.float32 or not a.flags.c_contiguous or a.shape != (h, w):
             raise ValueError(f"{name} must be a C-contiguous float32 array of shape {(h, w)}")
     pred_c = np.ascontiguousarray(predicted_coarse_nm, dtype=np.float64)
+    hc, wc = pred_c.shape
+    # the thickness noise of each table entry (colour noise over the colour slope, nm)
+    # as its confidence factor 1 / (1 + (sigma_t / 5 nm)^2)
+    sigma_t = np.sqrt(noise / 3.0) / np.maximum(np.asarray(slope_per_nm, dtype=np.float64), 1e-6)
+    slope_factor = 1.0 / (1.0 + (sigma_t / 5.0) ** 2)
     _classify_kernel(
         reasons,
         thickness_nm,
@@ -175,11 +176,12 @@ def classify(
         *_axis_weights(h, pred_c.shape[0], int(factor)),
         *_axis_weights(w, pred_c.shape[1], int(factor)),
         np.ascontiguousarray(region_coarse, dtype=np.int32),
-        int(factor),
+        np.minimum(hc - 1, np.arange(h) // int(factor)),
+        np.minimum(wc - 1, np.arange(w) // int(factor)),
         np.asarray(region_margin, dtype=np.float64),
         np.asarray(region_size, dtype=np.int64),
         np.asarray(faded, dtype=np.bool_),
-        np.asarray(slope_per_nm, dtype=np.float64),
+        slope_factor,
         float(t0_nm),
         float(step_nm),
         float(t_faded_nm),

@@ -412,13 +412,16 @@ def plane_fit(
             by = (sxx * (dy @ dz) - sxy * (dx @ dz)) / det
             rms = float(np.sqrt(np.mean((dz - bx * dx - by * dy) ** 2)))
             magnitude = math.hypot(bx, by)
+            direction = math.degrees(math.atan2(by, bx)) % 360.0
+            if direction >= 360.0:  # a tiny negative angle rounds up to 360: that is 0
+                direction = 0.0
             return PlaneFit(
                 count_px=int(z.size),
                 intercept_nm=float(zm - bx * xm - by * ym),
                 slope_x_nm_per_mm=float(bx),
                 slope_y_nm_per_mm=float(by),
                 magnitude_nm_per_mm=magnitude,
-                direction_deg=math.degrees(math.atan2(by, bx)) % 360.0,
+                direction_deg=direction,
                 wedge_angle_urad=math.atan(magnitude * 1e-6) * 1e6,
                 residual_rms_nm=rms,
             )

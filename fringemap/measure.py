@@ -36,6 +36,7 @@ from .matching.fullres import (
     fill_nearest,
     fullres_match,
     interp_coarse,
+    label_lookup,
     linear_at,
     neighbour_support,
     redo_pixels,
@@ -165,11 +166,11 @@ def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
         n, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
     if n <= 1:
         return np.zeros((h, w), dtype=bool)
-    big = np.zeros(n, dtype=bool)
+    big = np.zeros(n, dtype=np.uint8)
     big[1:] = stats[1:, cv2.CC_STAT_AREA] >= 0.005 * h * w
     if not big.any():
         return np.zeros((h, w), dtype=bool)
-    no_film = big[labels].view(np.uint8)
+    no_film = label_lookup(labels, big)
     # the blurred rim of the background mixes film and background light: not film
     no_film = cv2.dilate(no_film, np.ones((5, 5), np.uint8)).view(bool)
     return no_film & roi_mask

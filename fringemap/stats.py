@@ -16,8 +16,9 @@ import math
 import re
 from dataclasses import dataclass, fields
 
+import numba
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
 from fringemap._maps import as_map, json_value, region
 from fringemap.errors import OptionError
@@ -179,37 +180,72 @@ def _key_value(key):
     return np.array([bits], dtype=np.uint32).view(np.float32)[0]
 
 
-@njit(cache=True, nogil=True)
-def _first_pass(t, bits, area, upper):
-    count = 0
+#: values per block of the sums: each block is summed in order, then the block sums in
+#: order, so that the float sums do not depend on how many threads share the work
+_BLOCK = 1 << 16
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def _first_pass(t, bits, area, upper, nchunk):
+    n = t.shape[0]
+    nblocks = (n + _BLOCK - 1) // _BLOCK
+    parts = np.zeros((nchunk, upper.shape[0]), dtype=np.int64)
+    counts = np.zeros(nchunk, dtype=np.int64)
+    block_sums = np.zeros(nblocks)
+    los = np.full(nchunk, np.inf)
+    his = np.full(nchunk, -np.inf)
+    for ch in prange(nchunk):  # whole blocks of the map per thread, merged below
+        count = 0
+        lo = np.inf
+        hi = -np.inf
+        for b in range(ch * nblocks // nchunk, (ch + 1) * nblocks // nchunk):
+            total = 0.0
+            for i in range(b * _BLOCK, min(n, (b + 1) * _BLOCK)):
+                v = t[i]
+                if not area[i] or not np.isfinite(v):
+                    continue
+                count += 1
+                total += v
+                lo = min(lo, v)
+                hi = max(hi, v)
+                parts[ch, _sort_key(bits[i]) >> 16] += 1
+            block_sums[b] = total
+        counts[ch] = count
+        los[ch] = lo
+        his[ch] = hi
+    for ch in range(nchunk):
+        upper += parts[ch]
     total = 0.0
-    lo = np.inf
-    hi = -np.inf
-    for i in range(t.shape[0]):
-        v = t[i]
-        if not area[i] or not np.isfinite(v):
-            continue
-        count += 1
-        total += v
-        lo = min(lo, v)
-        hi = max(hi, v)
-        upper[_sort_key(bits[i]) >> 16] += 1
-    return count, total, lo, hi
+    for b in range(nblocks):
+        total += block_sums[b]
+    return counts.sum(), total, los.min(), his.max()
 
 
-@njit(cache=True, nogil=True)
-def _second_pass(t, bits, area, mean, slot, lower):
+@njit(cache=True, parallel=True, nogil=True)
+def _second_pass(t, bits, area, mean, slot, lower, nchunk):
+    n = t.shape[0]
+    nblocks = (n + _BLOCK - 1) // _BLOCK
+    parts = np.zeros((nchunk,) + lower.shape, dtype=np.uint32)  # < 2**32 px per chunk
+    block_sums = np.zeros(nblocks)
+    for ch in prange(nchunk):
+        for b in range(ch * nblocks // nchunk, (ch + 1) * nblocks // nchunk):
+            ss = 0.0
+            for i in range(b * _BLOCK, min(n, (b + 1) * _BLOCK)):
+                v = t[i]
+                if not area[i] or not np.isfinite(v):
+                    continue
+                d = v - mean
+                ss += d * d
+                key = _sort_key(bits[i])
+                s = slot[key >> 16]
+                if s >= 0:
+                    parts[ch, s, key & 0xFFFF] += 1
+            block_sums[b] = ss
+    for ch in range(nchunk):
+        lower += parts[ch]
     ss = 0.0
-    for i in range(t.shape[0]):
-        v = t[i]
-        if not area[i] or not np.isfinite(v):
-            continue
-        d = v - mean
-        ss += d * d
-        key = _sort_key(bits[i])
-        s = slot[key >> 16]
-        if s >= 0:
-            lower[s, key & 0xFFFF] += 1
+    for b in range(nblocks):
+        ss += block_sums[b]
     return ss
 
 
@@ -233,7 +269,11 @@ def _float32_moments(t: np.ndarray, area: np.ndarray, qs: np.ndarray):
     bits = flat.view(np.uint32)
     region_flat = np.ascontiguousarray(area).reshape(-1)
     upper = np.zeros(1 << 16, dtype=np.int64)
-    count, total, lo, hi = _first_pass(flat, bits, region_flat, upper)
+    # one chunk per thread (a few at most: each keeps its own histograms), and chunks
+    # of at most 2**31 values so that their 32-bit counts cannot overflow; the results
+    # do not depend on the number of chunks
+    nchunk = max(min(numba.get_num_threads(), 8), -(-flat.size // 2**31))
+    count, total, lo, hi = _first_pass(flat, bits, region_flat, upper, nchunk)
     if count == 0:
         return 0, math.nan, math.nan, math.nan, math.nan, np.full(qs.shape, math.nan)
     mean = total / count
@@ -247,7 +287,7 @@ def _float32_moments(t: np.ndarray, area: np.ndarray, qs: np.ndarray):
     slot = np.full(1 << 16, -1, dtype=np.int64)
     slot[bins] = np.arange(bins.size)
     lower = np.zeros((bins.size, 1 << 16), dtype=np.int64)
-    ss = _second_pass(flat, bits, region_flat, mean, slot, lower)
+    ss = _second_pass(flat, bits, region_flat, mean, slot, lower, nchunk)
     values = _rank_values(ranks, upper, slot, lower)
     a, b = values[: qs.size], values[qs.size :]
     frac = virtual - below

@@ -425,3 +425,25 @@ def test_float32_maps_match_numpy(t, seed):
     assert result.min_nm == values.min() and result.max_nm == values.max()
     assert result.mean_nm == pytest.approx(values.mean(), rel=1e-9, abs=1e-9)
     assert result.std_nm == pytest.approx(values.std(), rel=1e-6, abs=1e-6)
+
+
+def test_float32_statistics_do_not_depend_on_the_thread_count():
+    # the same map must give bit-identical statistics whether one thread or several
+    # share the passes (a batch worker runs with fewer threads than a single map run)
+    import numba
+
+    rng = np.random.default_rng(11)
+    t = (500 + 20 * rng.standard_normal((700, 900))).astype(np.float32)
+    t[rng.random(t.shape) < 0.05] = np.nan
+    before = numba.get_num_threads()
+    try:
+        several = uniformity(t)
+        numba.set_num_threads(1)
+        one = uniformity(t)
+    finally:
+        numba.set_num_threads(before)
+    assert one == several
+    # and against numpy (independent computation), on the measured values
+    values = t[np.isfinite(t)].astype(np.float64)
+    assert one.mean_nm == pytest.approx(values.mean(), rel=1e-12)
+    assert one.std_nm == pytest.approx(values.std(), rel=1e-9)

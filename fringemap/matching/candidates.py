@@ -102,32 +102,38 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
     e0 = e[:, 0].copy()
     e1 = e[:, 1].copy()
     e2 = e[:, 2].copy()
+    eec = ee.copy()
     for ch in prange((n_px + chunk - 1) // chunk):
-        d = np.empty(n)  # one distance buffer per chunk of pixels
+        # per chunk of pixels: the distances, padded with inf at both ends, and the
+        # local-minimum flags
+        d = np.empty(n + 2)
+        d[0] = np.inf
+        d[n + 1] = np.inf
+        is_min = np.empty(n, dtype=np.uint8)
         for p in range(ch * chunk, min(n_px, ch * chunk + chunk)):
             q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
             qq = q0 * q0 + q1 * q1 + q2 * q2
             mu = lam * qq
             inv = 1.0 / (qq + mu)
-            # the distance to every entry (the same formula as _dist, in a loop the
-            # compiler can vectorise)
+            # the distance to every entry (the same formula as _dist) and the local
+            # minima, each in a branch-free loop the compiler can vectorise
             for i in range(n):
                 qe = q0 * e0[i] + q1 * e1[i] + q2 * e2[i]
                 s = (qe + mu) * inv
-                d[i] = ee[i] - 2.0 * s * qe + s * s * qq + mu * (s - 1.0) * (s - 1.0)
+                d[i + 1] = eec[i] - 2.0 * s * qe + s * s * qq + mu * (s - 1.0) * (s - 1.0)
+            for i in range(n):
+                is_min[i] = (d[i + 1] <= d[i]) & (d[i + 1] < d[i + 2])
             for j in range(k):
                 out_t[p, j] = np.nan
                 out_c[p, j] = np.inf
-            for i in range(n):
-                d0 = d[i]
-                dm = d[i - 1] if i > 0 else np.inf
-                dp = d[i + 1] if i + 1 < n else np.inf
-                if not (d0 <= dm and d0 < dp):
+            for i in range(n):  # a few minima per order: the rest is skipped cheaply
+                if is_min[i] == 0:
                     continue
+                d0 = d[i + 1]
                 if i == 0 or i == n - 1:
                     t, c = t0 + i * stride * step, d0
                 else:
-                    off, c = _refine(dm, d0, dp)
+                    off, c = _refine(d[i], d0, d[i + 2])
                     t = t0 + (i + off) * stride * step
                 _insert(p, t, c, out_t, out_c)
             if stride > 1:

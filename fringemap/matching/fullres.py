@@ -32,6 +32,7 @@ __all__ = [
     "fill_nearest",
     "fullres_match",
     "interp_coarse",
+    "label_lookup",
 ]
 
 _LUT_MAX = 2.0
@@ -82,6 +83,17 @@ def dark_mask(img, lut, threshold):
                 + 0.0722 * _px(img, lut, y, x, 2)
             )
             out[y, x] = lum < threshold
+    return out
+
+
+@njit(cache=True, parallel=True, nogil=True)
+def label_lookup(labels, table):
+    """``table[labels]`` for a 2-D label image (one parallel pass, no index copy)."""
+    h, w = labels.shape
+    out = np.empty((h, w), dtype=table.dtype)
+    for y in prange(h):
+        for x in range(w):
+            out[y, x] = table[labels[y, x]]
     return out
 
 
@@ -206,10 +218,10 @@ def _fullres_kernel(
                 continue
             x0, x1, fx = xs0[x], xs1[x], fxs[x]
             pred = _interp(pred_c, y0, y1, fy, x0, x1, fx)
-            g = _interp(gain_c, y0, y1, fy, x0, x1, fx)
-            q0 = _enc(_px(img, lut_img, y, x, 0) / g, lut)
-            q1 = _enc(_px(img, lut_img, y, x, 1) / g, lut)
-            q2 = _enc(_px(img, lut_img, y, x, 2) / g, lut)
+            inv_g = 1.0 / _interp(gain_c, y0, y1, fy, x0, x1, fx)
+            q0 = _enc(_px(img, lut_img, y, x, 0) * inv_g, lut)
+            q1 = _enc(_px(img, lut_img, y, x, 1) * inv_g, lut)
+            q2 = _enc(_px(img, lut_img, y, x, 2) * inv_g, lut)
             qq = q0 * q0 + q1 * q1 + q2 * q2
             mu = lam * qq
             c = int(round((pred - t0) / step))

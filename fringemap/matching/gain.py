@@ -21,11 +21,20 @@ _LN2 = float(np.log(2.0))
 
 
 def _design(x: np.ndarray, y: np.ndarray, degree: int) -> np.ndarray:
-    cols = []
+    """The monomials ``x^(d-i) y^i`` (d = 0..degree, i = 0..d) at points (P,): (P, C)."""
+    x = np.asarray(x, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    xp, yp = [np.ones_like(x)], [np.ones_like(y)]
+    for _ in range(degree):
+        xp.append(xp[-1] * x)
+        yp.append(yp[-1] * y)
+    out = np.empty(((degree + 1) * (degree + 2) // 2, x.size))
+    c = 0
     for total in range(degree + 1):
         for i in range(total + 1):
-            cols.append(x ** (total - i) * y**i)
-    return np.stack(cols, axis=-1)
+            np.multiply(xp[total - i], yp[i], out=out[c])
+            c += 1
+    return out.T  # a column-major (P, C) view: each monomial contiguous
 
 
 @dataclass(frozen=True)

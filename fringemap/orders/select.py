@@ -73,7 +73,8 @@ class OrderSelection:
 
 
 #: order margins (cost per pixel) above this are all "sure"; hypotheses that far behind
-#: are not grown to the end, and the margin is reported as this value
+#: (over the whole region, or over the tenth of it they have covered first) are not
+#: grown to the end, and the margin is reported as this value
 MARGIN_CAP = 100.0
 
 
@@ -248,12 +249,19 @@ def _grow(
     out_c,
     assigned,
     abort_cost,
+    ref_c,
+    trail_cap,
+    min_count,
     ws,
     gen,
 ):
-    """Grow from a seed over pixels with allowed[p]: (pixels assigned, cost sum, stopped).
+    """Grow from a seed over pixels with allowed[p]: (pixels assigned, cost sum, stop).
 
-    Growth stops early (``stopped``) once the cost sum exceeds ``abort_cost``.
+    ``stop`` is 0 when the growth ran to its end, 1 when it stopped because the
+    cost sum exceeded ``abort_cost``, 2 when, after at least ``min_count``
+    pixels, its cost over the pixels it covered exceeded the reference costs
+    ``ref_c`` there by more than ``trail_cap`` per pixel (a hypothesis that far
+    behind the chosen labelling; ``trail_cap = inf`` never stops).
     The assigned pixels are listed, in order, in the workspace's visit list
     (``ws[4][:count]``); ``gen`` is a number unique to this growth (> 0).
     """
@@ -261,6 +269,7 @@ def _grow(
     size = 0
     count = 0
     cost_sum = 0.0
+    ref_sum = 0.0
     p, t, c = seed_p, seed_t, seed_c
     while True:
         # assign p, then queue its neighbours and take the cheapest that is still current
@@ -271,7 +280,10 @@ def _grow(
         count += 1
         cost_sum += c
         if cost_sum > abort_cost:
-            return count, cost_sum, True
+            return count, cost_sum, 1
+        ref_sum += ref_c[p]
+        if count >= min_count and cost_sum - ref_sum > trail_cap * count:
+            return count, cost_sum, 2
         size = _push_neighbours(
             p,
             h,
@@ -309,7 +321,7 @@ def _grow(
             break
         if p < 0:
             break
-    return count, cost_sum, False
+    return count, cost_sum, 0
 
 
 @njit(cache=True)
@@ -428,6 +440,9 @@ def _select_all(
             out_c,
             assigned,
             np.inf,
+            out_c,
+            np.inf,
+            n,
             main_ws,
             gen,
         )
@@ -450,10 +465,11 @@ def _select_all(
                     continue
                 # a hypothesis whose partial cost already exceeds the second best can
                 # be neither best nor second (costs are not negative), and one that
-                # exceeds the best by MARGIN_CAP per pixel only says "sure": stop it
+                # trails the chosen labelling by MARGIN_CAP per pixel, over the part of
+                # the region it has covered (a tenth at least), only says "sure": stop it
                 bound = min(second, best_cost + MARGIN_CAP * size_r)
                 gen += 1
-                cnt, csum, stopped = _grow(
+                cnt, csum, stop = _grow(
                     s,
                     cand_t[s, k],
                     cand_c[s, k],
@@ -469,12 +485,17 @@ def _select_all(
                     hyp_c[cur],
                     hyp_a[cur],
                     bound,
+                    out_c,
+                    MARGIN_CAP,
+                    max(min_region, size_r // 10),
                     hyp_ws[cur],
                     gen,
                 )
                 hyp_count[cur] = cnt
                 keep = False
-                if stopped:
+                if stop == 2:
+                    capped = True
+                elif stop == 1:
                     capped |= bound < second
                 else:
                     # a hypothesis that merges back into the chosen labelling is no

@@ -116,6 +116,8 @@ def _save_png(fig, path: str | os.PathLike[str]) -> Path:
             dpi=DPI,
             facecolor="white",
             metadata={"Software": f"fringemap {__version__}"},
+            # zlib level 3: about 40 % faster than the default 6, files about 20 % larger
+            pil_kwargs={"compress_level": 3},
         )
     if not target.is_file():  # pragma: no cover - atomic_path raises first
         raise OutputError("was not written", where=str(target))
@@ -224,13 +226,69 @@ def _map_axes(
     return fig, ax, (left, bottom, aw, ah), (fw, fh)
 
 
+_PIXEL_IMAGE = None
+
+
+def _pixel_image_class():
+    """An artist that draws an RGBA image into its axes by nearest-neighbour sampling,
+    one sample per output pixel (defined on first use: matplotlib is imported lazily)."""
+    global _PIXEL_IMAGE
+    if _PIXEL_IMAGE is None:
+        from matplotlib.artist import Artist
+
+        class PixelImage(Artist):
+            zorder = 0  # under the spines, ticks and any text or scale bar
+
+            def __init__(self, ax, rgba, extent):
+                super().__init__()
+                self._rgba = np.ascontiguousarray(rgba, dtype=np.uint8)
+                self._extent = extent
+                self.set_clip_box(ax.bbox)
+                self.axes = ax
+
+            def draw(self, renderer):
+                if not self.get_visible():
+                    return
+                box = self.axes.bbox
+                x0, x1 = round(box.x0), round(box.x1)
+                y0, y1 = round(box.y0), round(box.y1)
+                if x1 <= x0 or y1 <= y0:
+                    return
+                (xa, xb), (ya, yb) = self.axes.get_xlim(), self.axes.get_ylim()
+                left, right, bottom, top = self._extent
+                nh, nw = self._rgba.shape[:2]
+                # the data coordinate at the centre of each output column and row (rows
+                # from the top), and the image pixel that covers it
+                u = xa + (np.arange(x1 - x0) + 0.5) / (x1 - x0) * (xb - xa)
+                v = yb + (np.arange(y1 - y0) + 0.5) / (y1 - y0) * (ya - yb)
+                cols = np.floor((u - left) / (right - left) * nw).astype(np.int64)
+                rows = np.floor((v - top) / (bottom - top) * nh).astype(np.int64)
+                # one 32-bit word per RGBA pixel: a quarter of the gathers
+                words = self._rgba.view(np.uint32).reshape(nh, nw)
+                out = np.zeros((rows.size, cols.size), dtype=np.uint32)  # transparent
+                cin = (cols >= 0) & (cols < nw)
+                rin = (rows >= 0) & (rows < nh)
+                out[np.ix_(rin, cin)] = words[rows[rin]][:, cols[cin]]
+                out = out.view(np.uint8).reshape(rows.size, cols.size, 4)
+                gc = renderer.new_gc()
+                gc.set_clip_rectangle(box)
+                renderer.draw_image(gc, x0, y0, out[::-1])  # Agg puts row 0 at the bottom
+                gc.restore()
+
+        _PIXEL_IMAGE = PixelImage
+    return _PIXEL_IMAGE
+
+
 def _coloured_image(ax, values, cmap_name: str, bad, vmin: float, vmax: float, extent):
     """Colour a float map to 8-bit RGBA ourselves and show it; return a mappable
     for the colour bar.
 
-    Colouring before ``imshow`` (rather than letting matplotlib resample the
-    float data and colour it while drawing) makes drawing several times
-    faster and gives exactly the colour map's colours on screen.
+    The map is coloured once, before drawing, and drawn by nearest-neighbour
+    sampling at the output's pixels (:func:`_pixel_image_class`): exactly the
+    colour map's colours on screen, and none of the float resampling and
+    masked-array work of ``imshow`` on a megapixel map. ``extent`` is
+    (left, right, bottom, top) in data coordinates, as for ``imshow`` (default:
+    pixel centres at whole numbers).
     """
     import matplotlib
     from matplotlib.cm import ScalarMappable
@@ -239,7 +297,10 @@ def _coloured_image(ax, values, cmap_name: str, bad, vmin: float, vmax: float, e
     cmap = matplotlib.colormaps[cmap_name].with_extremes(bad=bad)
     norm = Normalize(vmin=vmin, vmax=vmax)
     rgba = cmap(norm(np.ma.masked_invalid(values)), bytes=True)
-    ax.imshow(rgba, extent=extent, interpolation="nearest", origin="upper")
+    if extent is None:
+        h, w = rgba.shape[:2]
+        extent = (-0.5, w - 0.5, h - 0.5, -0.5)
+    ax.add_artist(_pixel_image_class()(ax, rgba, extent))
     return ScalarMappable(norm=norm, cmap=cmap)
 
 
