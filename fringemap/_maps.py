@@ -43,7 +43,7 @@ def region(t: np.ndarray, mask: np.ndarray | None) -> np.ndarray:
     """The bool region of ``t`` given by ``mask`` (all pixels when None)."""
     if mask is None:
         return np.ones(t.shape, dtype=bool)
-    m = np.asarray(mask).astype(bool)
+    m = np.asarray(mask).astype(bool, copy=False)
     if m.shape != t.shape:
         raise OptionError(
             f"expected a region mask of shape {t.shape}, got shape {m.shape}", where="--roi"

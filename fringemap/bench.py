@@ -129,6 +129,8 @@ def _stages(path: Path, repeat: int) -> dict:
             t0 = time.perf_counter()
             write_map_outputs(result, tmp, "bench")
             add("write outputs", time.perf_counter() - t0)
+        # as a batch worker does: the photo's result is released before the next photo
+        del result
     # the pipeline's peak, before the floor below decodes a float copy of the photo
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     linear = photo.linear

@@ -35,6 +35,7 @@ from .matching.fullres import (
     dark_mask,
     fill_nearest,
     fullres_match,
+    halve_block_mean,
     interp_coarse,
     label_lookup,
     linear_at,
@@ -154,10 +155,11 @@ def _collapse_faded(ct: np.ndarray, cc: np.ndarray, t_faded: float) -> None:
     cc[drop] = np.inf
 
 
-def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
-    """Large dark areas (>= 0.5 % of the photo) and their 2 px rim: no film there."""
+def _background(dark: np.ndarray, roi_mask: np.ndarray | None) -> np.ndarray:
+    """Large dark areas (>= 0.5 % of the photo) and their 2 px rim: no film there
+    (``roi_mask`` None: the whole photo is the region)."""
     h, w = dark.shape
-    mask = (dark & roi_mask).view(np.uint8)
+    mask = (dark if roi_mask is None else dark & roi_mask).view(np.uint8)
     try:  # 16-bit labels: half the memory of 32-bit ones (and faster on a large photo)
         n, labels, stats, _ = cv2.connectedComponentsWithStatsWithAlgorithm(
             mask, 8, cv2.CV_16U, cv2.CCL_DEFAULT
@@ -171,9 +173,13 @@ def _background(dark: np.ndarray, roi_mask: np.ndarray) -> np.ndarray:
     if not big.any():
         return np.zeros((h, w), dtype=bool)
     no_film = label_lookup(labels, big)
+    del labels
     # the blurred rim of the background mixes film and background light: not film
-    no_film = cv2.dilate(no_film, np.ones((5, 5), np.uint8)).view(bool)
-    return no_film & roi_mask
+    cv2.dilate(no_film, np.ones((5, 5), np.uint8), dst=no_film)
+    no_film = no_film.view(bool)
+    if roi_mask is not None:
+        no_film &= roi_mask
+    return no_film
 
 
 def measure(
@@ -257,9 +263,13 @@ def measure(
             raise OptionError(
                 f"anchor {x:g},{y:g} lies outside the {w}x{h} photo", where=anchor_where
             )
+    # the whole photo as the region (the usual case) spares a few full-size masks
+    whole = bool(roi_mask.all())
+    region_mask = None if whole else roi_mask
     saturated = photo.saturated
+    n_saturated = np.count_nonzero(saturated)
     dark = dark_mask(img, code_lut, float(srgb_decode(np.array(MeasureSettings.dark_encoded))))
-    if saturated.mean() > 0.98:
+    if n_saturated > 0.98 * h * w:
         raise MeasurementError(
             "the photo is saturated almost everywhere: lower the exposure", where=where
         )
@@ -270,7 +280,7 @@ def measure(
     # what the masks decide, as reason codes (0 = usable): one uint8 map in place of the
     # dark and background masks, filled in later by the match
     reasons = mask_reasons(
-        roi=roi_mask, saturated=saturated, dark=dark, no_film=_background(dark, roi_mask)
+        roi=roi_mask, saturated=saturated, dark=dark, no_film=_background(dark, region_mask)
     )
     del dark
     usable = reasons == REASON_CODES["measured"]
@@ -300,7 +310,7 @@ def measure(
             thickness_nm=thick_out,
             confidence=np.zeros((h, w), dtype=np.float32),
             reasons=reasons,
-            stats=uniformity(thick_out, mask=roi_mask),
+            stats=uniformity(thick_out, mask=region_mask),
             recipe=recipe,
             source=photo.path,
             provenance={"software": f"fringemap {__version__}", "colour_table": table.key},
@@ -332,7 +342,7 @@ def measure(
     t_faded = float(table.thickness_nm[np.argmax(faded_c)]) if faded_c.any() else np.inf
     # the first, chromaticity-led passes only need the gain's broad shape: half resolution
     f_half = 2 * f
-    lin_h, frac_h = block_mean(img, code_lut, usable, f_half)
+    lin_h, frac_h = halve_block_mean(lin_c, frac_c)
     levels = {f: (lin_c, valid_c), f_half: (lin_h, frac_h >= 0.5)}
     full_lin_c, full_valid_c = lin_c, valid_c
     factors = [
@@ -516,10 +526,11 @@ def measure(
     gain_corner = float(gain.evaluate_at(np.array([0]), np.array([0]), (h, w))[0])
 
     warnings: list[str] = []
-    sat_frac = float((saturated & roi_mask).mean())
+    n_sat_roi = n_saturated if whole else np.count_nonzero(saturated & roi_mask)
+    sat_frac = n_sat_roi / (h * w)
     if sat_frac > 0.01:
         warnings.append(f"{100 * sat_frac:.1f} % of pixels are saturated: lower the exposure")
-    stats = uniformity(thick_out, mask=roi_mask)
+    stats = uniformity(thick_out, mask=region_mask)
     if stats.coverage < 0.01:
         inside = reasons[roi_mask]
         off = np.count_nonzero(inside == REASON_CODES["off-model"])

@@ -186,7 +186,7 @@ _BLOCK = 1 << 16
 
 
 @njit(cache=True, parallel=True, nogil=True)
-def _first_pass(t, bits, area, upper, nchunk):
+def _first_pass(t, bits, area, everywhere, upper, nchunk):
     n = t.shape[0]
     nblocks = (n + _BLOCK - 1) // _BLOCK
     parts = np.zeros((nchunk, upper.shape[0]), dtype=np.int64)
@@ -202,7 +202,7 @@ def _first_pass(t, bits, area, upper, nchunk):
             total = 0.0
             for i in range(b * _BLOCK, min(n, (b + 1) * _BLOCK)):
                 v = t[i]
-                if not area[i] or not np.isfinite(v):
+                if not (everywhere or area[i]) or not np.isfinite(v):
                     continue
                 count += 1
                 total += v
@@ -222,7 +222,7 @@ def _first_pass(t, bits, area, upper, nchunk):
 
 
 @njit(cache=True, parallel=True, nogil=True)
-def _second_pass(t, bits, area, mean, slot, lower, nchunk):
+def _second_pass(t, bits, area, everywhere, mean, slot, lower, nchunk):
     n = t.shape[0]
     nblocks = (n + _BLOCK - 1) // _BLOCK
     parts = np.zeros((nchunk,) + lower.shape, dtype=np.uint32)  # < 2**32 px per chunk
@@ -232,7 +232,7 @@ def _second_pass(t, bits, area, mean, slot, lower, nchunk):
             ss = 0.0
             for i in range(b * _BLOCK, min(n, (b + 1) * _BLOCK)):
                 v = t[i]
-                if not area[i] or not np.isfinite(v):
+                if not (everywhere or area[i]) or not np.isfinite(v):
                     continue
                 d = v - mean
                 ss += d * d
@@ -263,17 +263,20 @@ def _rank_values(ranks, upper, slot, lower):
     return out
 
 
-def _float32_moments(t: np.ndarray, area: np.ndarray, qs: np.ndarray):
-    """count, mean, std (ddof 0), min, max and percentiles ``qs`` (numpy's linear rule)."""
+def _float32_moments(t: np.ndarray, area: np.ndarray | None, qs: np.ndarray):
+    """count, mean, std (ddof 0), min, max and percentiles ``qs`` (numpy's linear rule)
+    of the finite values of ``t`` inside ``area`` (None: everywhere)."""
     flat = np.ascontiguousarray(t).reshape(-1)
     bits = flat.view(np.uint32)
-    region_flat = np.ascontiguousarray(area).reshape(-1)
+    # area None: every pixel (no full-size mask made)
+    everywhere = area is None
+    region_flat = np.ones(1, dtype=bool) if everywhere else np.ascontiguousarray(area).reshape(-1)
     upper = np.zeros(1 << 16, dtype=np.int64)
     # one chunk per thread (a few at most: each keeps its own histograms), and chunks
     # of at most 2**31 values so that their 32-bit counts cannot overflow; the results
     # do not depend on the number of chunks
     nchunk = max(min(numba.get_num_threads(), 8), -(-flat.size // 2**31))
-    count, total, lo, hi = _first_pass(flat, bits, region_flat, upper, nchunk)
+    count, total, lo, hi = _first_pass(flat, bits, region_flat, everywhere, upper, nchunk)
     if count == 0:
         return 0, math.nan, math.nan, math.nan, math.nan, np.full(qs.shape, math.nan)
     mean = total / count
@@ -287,7 +290,7 @@ def _float32_moments(t: np.ndarray, area: np.ndarray, qs: np.ndarray):
     slot = np.full(1 << 16, -1, dtype=np.int64)
     slot[bins] = np.arange(bins.size)
     lower = np.zeros((bins.size, 1 << 16), dtype=np.int64)
-    ss = _second_pass(flat, bits, region_flat, mean, slot, lower, nchunk)
+    ss = _second_pass(flat, bits, region_flat, everywhere, mean, slot, lower, nchunk)
     values = _rank_values(ranks, upper, slot, lower)
     a, b = values[: qs.size], values[qs.size :]
     frac = virtual - below
@@ -342,9 +345,13 @@ def uniformity(
             where="--spec",
         )
     t = as_map(thickness_nm)
-    area = region(t, mask)
-    region_px = int(np.count_nonzero(area))
     qs = np.array([1.0, 5.0, 50.0, 95.0, 99.0])
+    if t.dtype == np.float32 and mask is None:  # the whole map: no mask needed
+        area = None
+        region_px = t.size
+    else:
+        area = region(t, mask)
+        region_px = int(np.count_nonzero(area))
     if t.dtype == np.float32:
         count, mean, std, lo, hi, pct = _float32_moments(t, area, qs)
     else:
@@ -367,7 +374,7 @@ def uniformity(
         if count:
             with np.errstate(invalid="ignore"):
                 inside = np.abs(t - spec.target_nm) <= spec.tol_nm
-            fraction = float(np.count_nonzero(inside & area)) / count
+            fraction = float(np.count_nonzero(inside if area is None else inside & area)) / count
             passed = fraction >= required_fraction
         else:
             fraction, passed = math.nan, False

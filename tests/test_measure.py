@@ -183,12 +183,35 @@ def test_background_mask_matches_an_independent_labelling(specks):
         h, w = dark.shape
     roi = np.ones((h, w), dtype=bool)
     roi[:, -20:] = False
-    got = _background(dark, roi)
-    labels, n = ndimage.label(dark & roi, structure=np.ones((3, 3)))
-    sizes = ndimage.sum_labels(np.ones_like(labels), labels, index=np.arange(1, n + 1))
-    big = np.isin(labels, 1 + np.flatnonzero(sizes >= 0.005 * h * w))
-    want = ndimage.binary_dilation(big, structure=np.ones((5, 5))) & roi
-    np.testing.assert_array_equal(got, want)
+    for region in (roi, None):  # None: the whole photo
+        got = _background(dark, region)
+        inside = roi if region is not None else np.ones((h, w), dtype=bool)
+        labels, n = ndimage.label(dark & inside, structure=np.ones((3, 3)))
+        sizes = ndimage.sum_labels(np.ones_like(labels), labels, index=np.arange(1, n + 1))
+        big = np.isin(labels, 1 + np.flatnonzero(sizes >= 0.005 * h * w))
+        want = ndimage.binary_dilation(big, structure=np.ones((5, 5))) & inside
+        np.testing.assert_array_equal(got, want)
+
+
+def test_halved_block_means_match_a_direct_block_mean():
+    # independent computation: numpy means of the usable pixels over 2f x 2f blocks
+    from fringemap.matching.fullres import NO_LUT, block_mean, halve_block_mean
+
+    rng = np.random.default_rng(2)
+    img = rng.random((203, 259, 3)).astype(np.float32)
+    usable = rng.random((203, 259)) < 0.6
+    usable[:40] = False  # whole blocks with nothing usable
+    f = 8
+    mean, frac = halve_block_mean(*block_mean(img, NO_LUT, usable, f))
+    hh, wh = 203 // (2 * f), 259 // (2 * f)
+    u = usable[: hh * 2 * f, : wh * 2 * f].reshape(hh, 2 * f, wh, 2 * f)
+    v = img[: hh * 2 * f, : wh * 2 * f].reshape(hh, 2 * f, wh, 2 * f, 3).astype(np.float64)
+    n = u.sum(axis=(1, 3))
+    with np.errstate(invalid="ignore"):
+        want = (v * u[..., None]).sum(axis=(1, 3)) / n[..., None]
+    assert mean.shape == (hh, wh, 3)
+    np.testing.assert_allclose(mean, want, rtol=1e-12, equal_nan=True)
+    np.testing.assert_allclose(frac, n / (2 * f) ** 2, rtol=0, atol=1e-15)
 
 
 @pytest.mark.parametrize("stride", [1, 4])

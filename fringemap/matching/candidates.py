@@ -110,6 +110,7 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
         d[0] = np.inf
         d[n + 1] = np.inf
         is_min = np.empty(n, dtype=np.uint8)
+        found = np.empty(k)
         for p in range(ch * chunk, min(n_px, ch * chunk + chunk)):
             q0, q1, q2 = q[p, 0], q[p, 1], q[p, 2]
             qq = q0 * q0 + q1 * q1 + q2 * q2
@@ -138,7 +139,7 @@ def _candidates_kernel(q, e_full, ee_full, stride, lam, k, t0, step, out_t, out_
                 _insert(p, t, c, out_t, out_c)
             if stride > 1:
                 _refine_on_full_table(
-                    p, q0, q1, q2, qq, mu, e_full, ee_full, t0, step, stride, out_t, out_c
+                    p, q0, q1, q2, qq, mu, e_full, ee_full, t0, step, stride, out_t, out_c, found
                 )
 
 
@@ -156,14 +157,15 @@ def _insert(p, t, c, out_t, out_c):
         out_t[p, j] = t
 
 
-@njit(cache=True)
-def _refine_on_full_table(p, q0, q1, q2, qq, mu, e, ee, t0, step, stride, out_t, out_c):
+@njit(cache=True, _nrt=False)  # allocates nothing: no reference counting (see select)
+def _refine_on_full_table(p, q0, q1, q2, qq, mu, e, ee, t0, step, stride, out_t, out_c, found_t):
     """Follow each of pixel p's candidates (from the strided scan) downhill on the full
     table and refine it there; the list is rebuilt, best first, without duplicates (two
-    scan minima that lead to the same minimum)."""
+    scan minima that lead to the same minimum). ``found_t`` (K,) is working space."""
     k = out_t.shape[1]
     n = e.shape[0]
-    found_t = out_t[p].copy()
+    for j in range(k):
+        found_t[j] = out_t[p, j]
     for j in range(k):
         out_t[p, j] = np.nan
         out_c[p, j] = np.inf

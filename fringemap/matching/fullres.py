@@ -29,6 +29,7 @@ __all__ = [
     "linear_at",
     "dark_mask",
     "block_mean",
+    "halve_block_mean",
     "fill_nearest",
     "fullres_match",
     "interp_coarse",
@@ -125,16 +126,19 @@ def block_mean(img, lut, usable, f):
     return mean, frac
 
 
-@njit(cache=True, inline="always")
-def _take_nearer(y, x, y1, x1, sy, sx, d2):
-    """Adopt neighbour (y1, x1)'s nearest seed for (y, x) if it is nearer."""
-    h, w = d2.shape
-    if 0 <= y1 < h and 0 <= x1 < w and sy[y1, x1] >= 0:
-        dd = (y - sy[y1, x1]) ** 2 + (x - sx[y1, x1]) ** 2
-        if dd < d2[y, x]:
-            d2[y, x] = dd
-            sy[y, x] = sy[y1, x1]
-            sx[y, x] = sx[y1, x1]
+def halve_block_mean(mean: np.ndarray, frac: np.ndarray):
+    """:func:`block_mean` at twice the block size, from its result at this one (the
+    usable pixels of each 2 × 2 group of blocks pooled): (hc // 2, wc // 2, 3), (hc // 2,
+    wc // 2). Equal to ``block_mean(..., 2 * f)`` up to rounding, without reading the
+    photo again."""
+    h2, w2 = frac.shape[0] // 2, frac.shape[1] // 2
+    n = frac[: 2 * h2, : 2 * w2]
+    s = np.nan_to_num(mean[: 2 * h2, : 2 * w2]) * n[..., None]
+    total = s.reshape(h2, 2, w2, 2, 3).sum(axis=(1, 3))
+    count = n.reshape(h2, 2, w2, 2).sum(axis=(1, 3))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        pooled = np.where(count[..., None] > 0, total / count[..., None], np.nan)
+    return pooled, count / 4.0
 
 
 @njit(cache=True)
@@ -146,22 +150,36 @@ def _nearest_seeds(valid):
     h, w = valid.shape
     sy = np.full((h, w), -1, dtype=np.int64)
     sx = np.full((h, w), -1, dtype=np.int64)
-    d2 = np.full((h, w), np.inf)
+    d2 = np.full((h, w), np.iinfo(np.int64).max, dtype=np.int64)  # squared, whole px
     for y in range(h):
         for x in range(w):
             if valid[y, x]:
                 sy[y, x] = y
                 sx[y, x] = x
-                d2[y, x] = 0.0
+                d2[y, x] = 0
     for _ in range(2):
-        for y in range(h):  # forward: from the row above and the left
-            for x in range(w):
-                for dy, dx in ((-1, -1), (-1, 0), (-1, 1), (0, -1)):
-                    _take_nearer(y, x, y + dy, x + dx, sy, sx, d2)
-        for y in range(h - 1, -1, -1):  # backward: from the row below and the right
-            for x in range(w - 1, -1, -1):
-                for dy, dx in ((1, 1), (1, 0), (1, -1), (0, 1)):
-                    _take_nearer(y, x, y + dy, x + dx, sy, sx, d2)
+        for sweep in range(2):
+            # forward: from the row above and the left; backward: from below and the right
+            sign = 1 if sweep == 0 else -1
+            for yy in range(h):
+                y = yy if sweep == 0 else h - 1 - yy
+                for xx in range(w):
+                    x = xx if sweep == 0 else w - 1 - xx
+                    for k in range(4):  # (-1, -1), (-1, 0), (-1, 1), (0, -1) times sign
+                        y1 = y - sign * (1 if k < 3 else 0)
+                        x1 = x + sign * (k - 1 if k < 3 else -1)
+                        if y1 < 0 or y1 >= h or x1 < 0 or x1 >= w:
+                            continue
+                        s = sy[y1, x1]
+                        if s < 0:
+                            continue
+                        a = y - s
+                        b = x - sx[y1, x1]
+                        dd = a * a + b * b
+                        if dd < d2[y, x]:
+                            d2[y, x] = dd
+                            sy[y, x] = s
+                            sx[y, x] = sx[y1, x1]
     return sy, sx
 
 
