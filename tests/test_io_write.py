@@ -67,6 +67,11 @@ def test_float_tiff_round_trip_with_description(tmp_path):
     np.testing.assert_array_equal(back, values)  # NaN positions compare equal here
     with tifffile.TiffFile(target) as tif:
         assert tif.pages.first.compression == tifffile.COMPRESSION.ADOBE_DEFLATE
+    plain = tmp_path / "plain.tif"  # stored as is: the same values, no compression
+    write_float_tiff(plain, values, description=description, compress=False)
+    np.testing.assert_array_equal(tifffile.imread(plain), values)
+    with tifffile.TiffFile(plain) as tif:
+        assert tif.pages.first.compression == tifffile.COMPRESSION.NONE
     assert read_tiff_description(target) == {
         "quantity": "thickness",
         "unit": "nm",

@@ -108,6 +108,7 @@ def write_map_outputs(
                 tmp["thickness"],
                 result.thickness_nm.astype(np.float32, copy=False),
                 description=_description(result, "film thickness", "nm"),
+                compress=False,  # measured floats barely compress (see write_float_tiff)
             )
             write_float_tiff(
                 tmp["confidence"],
