@@ -275,6 +275,9 @@ def _init_worker(table_blob: bytes, camera_blob: bytes, threads: int, parent_pid
     worker whose parent dies (e.g. killed with SIGKILL) stops by itself,
     removing the temporary file it was writing.
     """
+    from ._memory import keep_freed_memory
+
+    keep_freed_memory()  # each photo reuses the previous one's memory
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C
     signal.signal(signal.SIGTERM, _stop_worker)
     threading.Thread(target=_watch_parent, args=(parent_pid,), daemon=True).start()

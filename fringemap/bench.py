@@ -214,7 +214,15 @@ def _first_touch_in_fresh_process() -> float:
 
 
 def _child(path: str, repeat: int) -> None:
-    """Run in a fresh process: stage timings and peak memory as JSON on stdout."""
+    """Run in a fresh process: stage timings and peak memory as JSON on stdout.
+
+    The process's allocator is set up as the command's and the batch workers' are
+    (:func:`fringemap._memory.keep_freed_memory`), so "warm" means what it means
+    for a worker measuring photo after photo.
+    """
+    from ._memory import keep_freed_memory
+
+    keep_freed_memory()
     med = _stages(Path(path), repeat)
     print(json.dumps(med))
 

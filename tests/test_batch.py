@@ -385,3 +385,17 @@ def test_workers_and_scheduler_exclude_each_other(photos, tmp_path, capsys):
     )
     assert code == 2
     assert "--workers" in capsys.readouterr().err
+
+
+def test_allocator_setting_applies_on_glibc_linux():
+    # the command and the batch workers keep freed memory for the next photo; on Linux
+    # with glibc the allocator accepts the settings (mallopt returns 1), elsewhere the
+    # call reports False and changes nothing; a second call is a no-op
+    import platform
+
+    from fringemap._memory import keep_freed_memory
+
+    first = keep_freed_memory()
+    assert keep_freed_memory() is first
+    if sys.platform.startswith("linux") and platform.libc_ver()[0] == "glibc":
+        assert first is True

@@ -111,6 +111,9 @@ def main(argv: list[str] | None = None) -> int:
     debug = getattr(args, "debug", False)
     if not debug:
         _one_line_warnings()
+    from .._memory import keep_freed_memory
+
+    keep_freed_memory()  # photo after photo reuses the same memory (see fringemap._memory)
     try:
         return int(args.func(args) or 0)
     except FringemapError as exc:
