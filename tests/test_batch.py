@@ -389,8 +389,9 @@ def test_workers_and_scheduler_exclude_each_other(photos, tmp_path, capsys):
 
 def test_allocator_setting_applies_on_glibc_linux():
     # the command and the batch workers keep freed memory for the next photo; on Linux
-    # with glibc the allocator accepts the settings (mallopt returns 1), elsewhere the
-    # call reports False and changes nothing; a second call is a no-op
+    # with glibc the allocator accepts the settings (glibc's mallopt returns 1 on success,
+    # from memory of the GNU C Library manual), elsewhere the call reports False and
+    # changes nothing; a second call is a no-op
     import platform
 
     from fringemap._memory import keep_freed_memory

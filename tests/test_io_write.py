@@ -67,7 +67,9 @@ def test_float_tiff_round_trip_with_description(tmp_path):
     np.testing.assert_array_equal(back, values)  # NaN positions compare equal here
     with tifffile.TiffFile(target) as tif:
         assert tif.pages.first.compression == tifffile.COMPRESSION.ADOBE_DEFLATE
-    plain = tmp_path / "plain.tif"  # stored as is: the same values, no compression
+    # stored as is: read back by tifffile (an independent TIFF reader), the same values,
+    # and the TIFF Compression tag says none (TIFF 6.0: 1 = no compression)
+    plain = tmp_path / "plain.tif"
     write_float_tiff(plain, values, description=description, compress=False)
     np.testing.assert_array_equal(tifffile.imread(plain), values)
     with tifffile.TiffFile(plain) as tif:
